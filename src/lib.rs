@@ -1,0 +1,25 @@
+//! tonus: membrane tension from the tap tone.
+//!
+//! Data flow: [`recording`] reads a WAV file → [`tap`] finds the tap and the
+//! span to analyse → [`spectrum`] and [`partials`] measure the partials →
+//! [`membrane`] predicts the mode lines → [`matching`] assigns partials to
+//! modes → [`fit`] fits the wave speed and tension → [`report`] writes the
+//! results. [`synth`] makes test and demo recordings by modal synthesis.
+
+pub mod error;
+pub mod partials;
+pub mod recording;
+pub mod spectrum;
+pub mod tap;
+pub mod units;
+pub mod warning;
+pub mod report {
+    //! placeholder
+    use std::path::{Path, PathBuf};
+    /// Temporary sibling path used for atomic writes.
+    pub fn temp_path(p: &Path) -> PathBuf {
+        let mut s = p.as_os_str().to_owned();
+        s.push(".part");
+        PathBuf::from(s)
+    }
+}

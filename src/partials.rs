@@ -1,0 +1,479 @@
+//! Partials: the peaks of the tap spectrum, with frequency, level, SNR and
+//! decay, and the mains hum set aside.
+//!
+//! Conventions: spectra as in [`crate::spectrum`] (one-sided, dB re a
+//! full-scale sine). SNR is the peak power over the local noise-floor mean
+//! power, in dB. Decay is measured on a short-time Fourier transform of the
+//! span and given as a level decay rate in dB/s; T60 = 60 dB / rate, the
+//! amplitude time constant τ = 20/(rate·ln 10) and Q = π·f·τ.
+
+use crate::recording::Recording;
+use crate::spectrum::{self, Spectrum};
+use crate::tap::{self, TapSpan};
+use crate::warning::Warning;
+use realfft::RealFftPlanner;
+use serde::Serialize;
+
+/// Default minimum SNR of a partial, dB.
+pub const DEFAULT_MIN_SNR_DB: f64 = 10.0;
+/// Default minimum topographic prominence of a partial, dB.
+pub const DEFAULT_MIN_PROMINENCE_DB: f64 = 6.0;
+/// Default lowest frequency searched, Hz.
+pub const DEFAULT_MIN_FREQUENCY_HZ: f64 = 20.0;
+/// Default largest number of partials kept (the strongest).
+pub const DEFAULT_MAX_PARTIALS: usize = 48;
+/// A partial is a hum candidate within this distance (Hz) of k·mains/k, i.e.
+/// |f/k − mains| below it. Grids hold their frequency within ±0.2 Hz in
+/// normal operation (common practice; e.g. the European grid's ±200 mHz
+/// normal band).
+pub const HUM_TOLERANCE_HZ: f64 = 0.25;
+/// Highest mains harmonic considered.
+pub const HUM_MAX_HARMONIC: u32 = 40;
+/// A partial decaying slower than this (dB/s) is "sustained".
+pub const SUSTAINED_DECAY_DB_PER_S: f64 = 3.0;
+
+/// Settings of the partial finder.
+#[derive(Debug, Clone)]
+pub struct AnalysisConfig {
+    /// Minimum SNR, dB.
+    pub min_snr_db: f64,
+    /// Minimum prominence, dB.
+    pub min_prominence_db: f64,
+    /// Lowest frequency searched, Hz.
+    pub min_frequency_hz: f64,
+    /// Highest frequency searched, Hz (None: 95 % of Nyquist).
+    pub max_frequency_hz: Option<f64>,
+    /// Largest number of partials kept.
+    pub max_partials: usize,
+    /// Mains frequencies whose families are recognised as hum.
+    pub mains_hz: Vec<f64>,
+}
+
+impl Default for AnalysisConfig {
+    fn default() -> Self {
+        AnalysisConfig {
+            min_snr_db: DEFAULT_MIN_SNR_DB,
+            min_prominence_db: DEFAULT_MIN_PROMINENCE_DB,
+            min_frequency_hz: DEFAULT_MIN_FREQUENCY_HZ,
+            max_frequency_hz: None,
+            max_partials: DEFAULT_MAX_PARTIALS,
+            mains_hz: vec![50.0, 60.0],
+        }
+    }
+}
+
+/// One measured partial.
+#[derive(Debug, Clone, Serialize)]
+pub struct Partial {
+    /// Frequency, Hz.
+    pub frequency_hz: f64,
+    /// Peak level, dB re a full-scale sine.
+    pub level_db: f64,
+    /// Peak power over the local noise floor, dB.
+    pub snr_db: f64,
+    /// Topographic prominence of the peak, dB.
+    pub prominence_db: f64,
+    /// Level decay rate, dB/s (positive for a decaying partial); None when
+    /// too few frames stand above the noise to measure it.
+    pub decay_rate_db_per_s: Option<f64>,
+    /// Time to decay by 60 dB, s.
+    pub t60_s: Option<f64>,
+    /// Quality factor π·f·τ.
+    pub q: Option<f64>,
+}
+
+/// A partial set aside as mains hum.
+#[derive(Debug, Clone, Serialize)]
+pub struct HumLine {
+    /// The partial.
+    pub partial: Partial,
+    /// Mains frequency of its family, Hz.
+    pub mains_hz: f64,
+    /// Harmonic number.
+    pub harmonic: u32,
+}
+
+/// Everything the partial finder learned from one recording.
+#[derive(Debug, Clone)]
+pub struct PartialAnalysis {
+    /// Where the tap is.
+    pub tap: TapSpan,
+    /// The spectrum of the analysed span.
+    pub spectrum: Spectrum,
+    /// Partials of the tap, sorted by frequency.
+    pub partials: Vec<Partial>,
+    /// Lines set aside as hum.
+    pub hum: Vec<HumLine>,
+    /// Warnings from reading and analysis.
+    pub warnings: Vec<Warning>,
+    /// Sample rate, Hz.
+    pub sample_rate_hz: f64,
+}
+
+/// Finds the tap and measures its partials.
+///
+/// # Errors
+/// Never fails on a recording that [`crate::recording::read_wav`] accepted;
+/// the `Result` leaves room for checks of the configuration.
+pub fn analyse(rec: &Recording, cfg: &AnalysisConfig) -> crate::error::Result<PartialAnalysis> {
+    let mut planner = RealFftPlanner::new();
+    analyse_with(rec, cfg, &mut planner)
+}
+
+/// As [`analyse`], reusing an FFT planner (batches plan once).
+pub fn analyse_with(
+    rec: &Recording,
+    cfg: &AnalysisConfig,
+    planner: &mut RealFftPlanner<f64>,
+) -> crate::error::Result<PartialAnalysis> {
+    let sr = rec.sample_rate_hz;
+    let tap = tap::find_tap(&rec.samples, sr);
+    let span = &rec.samples[tap.onset_sample..tap.end_sample];
+    let spec = spectrum::compute(span, sr, planner);
+    let mut warnings = Vec::new();
+    if rec.clipped_fraction > 0.0 {
+        warnings.push(Warning::Clipping {
+            fraction: rec.clipped_fraction,
+        });
+    }
+    if !tap.onset_found {
+        warnings.push(Warning::NoOnset);
+    }
+    if !tap.further_taps_s.is_empty() {
+        warnings.push(Warning::FurtherTaps {
+            onsets_s: tap.further_taps_s.clone(),
+        });
+    }
+    if tap.span_s < 0.1 {
+        warnings.push(Warning::ShortSpan { span_s: tap.span_s });
+    }
+    let fmax = cfg
+        .max_frequency_hz
+        .unwrap_or(0.95 * sr / 2.0)
+        .min(0.95 * sr / 2.0);
+    let mut found = pick_peaks(&spec, cfg.min_frequency_hz, fmax, cfg);
+    measure_decays(span, sr, &mut found, planner, &spec);
+    found.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
+
+    // Hum: near a mains harmonic and not decaying with the tap. In a steady
+    // recording there is no tap to compare with, so nothing is set aside.
+    let mut partials = Vec::new();
+    let mut hum = Vec::new();
+    for p in found {
+        match hum_family(&p, &cfg.mains_hz) {
+            Some((mains, k)) if tap.onset_found => hum.push(HumLine {
+                partial: p,
+                mains_hz: mains,
+                harmonic: k,
+            }),
+            _ => partials.push(p),
+        }
+    }
+    for &mains in &cfg.mains_hz {
+        let f: Vec<f64> = hum
+            .iter()
+            .filter(|h| h.mains_hz == mains)
+            .map(|h| h.partial.frequency_hz)
+            .collect();
+        if !f.is_empty() {
+            warnings.push(Warning::Hum {
+                mains_hz: mains,
+                frequencies_hz: f,
+            });
+        }
+    }
+    Ok(PartialAnalysis {
+        tap,
+        spectrum: spec,
+        partials,
+        hum,
+        warnings,
+        sample_rate_hz: sr,
+    })
+}
+
+/// The mains family a sustained partial belongs to, if any.
+fn hum_family(p: &Partial, mains: &[f64]) -> Option<(f64, u32)> {
+    let sustained = match p.decay_rate_db_per_s {
+        Some(r) => r < SUSTAINED_DECAY_DB_PER_S,
+        None => false,
+    };
+    if !sustained {
+        return None;
+    }
+    for &m in mains {
+        let k = (p.frequency_hz / m).round();
+        if k >= 1.0 && k <= HUM_MAX_HARMONIC as f64 && (p.frequency_hz / k - m).abs() < HUM_TOLERANCE_HZ {
+            return Some((m, k as u32));
+        }
+    }
+    None
+}
+
+/// Local maxima that pass the SNR and prominence tests, refined below the
+/// bin spacing.
+///
+/// Sub-bin refinement: a parabola through the log power of the peak bin and
+/// its two neighbours (quadratic interpolation of the log spectrum; J. O.
+/// Smith and X. Serra, "PARSHL: An Analysis/Synthesis Program for
+/// Non-Harmonic Sounds Based on a Sinusoidal Representation", Proc. ICMC
+/// 1987). With bins p₋, p₀, p₊ in dB the offset is
+/// δ = ½(p₋ − p₊)/(p₋ − 2p₀ + p₊) bins and the peak level p₀ − ¼(p₋ − p₊)δ.
+/// The zero padding of [`spectrum::ZERO_PAD_FACTOR`] keeps its bias far
+/// below the bin spacing.
+pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -> Vec<Partial> {
+    let db = &spec.level_db;
+    let nb = db.len();
+    let lo = ((fmin / spec.bin_hz).floor() as usize).max(1);
+    let hi = ((fmax / spec.bin_hz).ceil() as usize).min(nb.saturating_sub(2));
+    let mut cands: Vec<Partial> = Vec::new();
+    // The padded spectrum is smooth: a peak must top its neighbours over
+    // half a resolution bin either side.
+    let guard = (spectrum::ZERO_PAD_FACTOR / 2).max(1);
+    let min_snr = cfg.min_snr_db.max(false_alarm_snr_db(
+        (hi.saturating_sub(lo) / spectrum::ZERO_PAD_FACTOR).max(1),
+    ));
+    for k in lo.max(guard)..hi.min(nb - guard) {
+        let v = db[k];
+        if !(v >= db[k - 1] && v > db[k + 1]) {
+            continue;
+        }
+        if (1..=guard).any(|g| db[k - g] > v || db[k + g] > v) {
+            continue;
+        }
+        let snr = v - spec.floor_db(k);
+        if snr < min_snr {
+            continue;
+        }
+        let prom = prominence(db, k);
+        if prom < cfg.min_prominence_db {
+            continue;
+        }
+        let (a, b, c) = (db[k - 1], db[k], db[k + 1]);
+        let denom = a - 2.0 * b + c;
+        let delta = if denom.abs() > 1e-12 {
+            (0.5 * (a - c) / denom).clamp(-0.5, 0.5)
+        } else {
+            0.0
+        };
+        let level = b - 0.25 * (a - c) * delta;
+        cands.push(Partial {
+            frequency_hz: (k as f64 + delta) * spec.bin_hz,
+            level_db: level,
+            snr_db: level - spec.floor_db(k),
+            prominence_db: prom,
+            decay_rate_db_per_s: None,
+            t60_s: None,
+            q: None,
+        });
+    }
+    cands.sort_by(|a, b| b.level_db.total_cmp(&a.level_db));
+    cands.truncate(cfg.max_partials);
+    cands
+}
+
+/// Probability that any pure-noise bin of the searched band passes the
+/// SNR test.
+pub const FALSE_ALARM_PROBABILITY: f64 = 0.01;
+
+/// The SNR (dB) that pure noise exceeds in any of `n_independent` bins
+/// with probability [`FALSE_ALARM_PROBABILITY`]. The power of a noise bin
+/// over its mean is exponentially distributed, so
+/// P(any of N exceeds x) ≈ N·e^(−x) and x = ln(N/P) (the periodogram
+/// peak test of R. A. Fisher, "Tests of significance in harmonic analysis",
+/// Proc. R. Soc. Lond. A 125, 1929, in its large-N form).
+pub fn false_alarm_snr_db(n_independent: usize) -> f64 {
+    10.0 * ((n_independent as f64 / FALSE_ALARM_PROBABILITY).ln()).log10()
+}
+
+/// Topographic prominence of the peak at `k`: its height over the higher
+/// of the two lowest points between it and the nearest higher ground on
+/// either side (or the spectrum's end).
+fn prominence(db: &[f64], k: usize) -> f64 {
+    let v = db[k];
+    let mut left_min = v;
+    let mut i = k;
+    while i > 0 {
+        i -= 1;
+        if db[i] > v {
+            break;
+        }
+        left_min = left_min.min(db[i]);
+    }
+    let mut right_min = v;
+    let mut j = k;
+    while j + 1 < db.len() {
+        j += 1;
+        if db[j] > v {
+            break;
+        }
+        right_min = right_min.min(db[j]);
+    }
+    v - left_min.max(right_min)
+}
+
+/// Measures each partial's decay on a short-time Fourier transform of the
+/// span: the level at the partial's frequency per frame, fitted by a
+/// straight line in dB against time from the strongest frame until the
+/// level nears the noise.
+fn measure_decays(
+    span: &[f64],
+    sr: f64,
+    partials: &mut [Partial],
+    planner: &mut RealFftPlanner<f64>,
+    spec: &Spectrum,
+) {
+    let n = span.len();
+    // At least eight half-overlapping frames, between 256 and 8192 samples.
+    let mut frame = 256usize;
+    while frame * 2 <= 8192 && (frame * 2) * 9 / 2 <= n {
+        frame *= 2;
+    }
+    if frame > n {
+        return;
+    }
+    let hop = frame / 2;
+    let n_frames = (n - frame) / hop + 1;
+    if n_frames < 3 {
+        return;
+    }
+    let hann: Vec<f64> = (0..frame)
+        .map(|i| 0.5 - 0.5 * (2.0 * std::f64::consts::PI * i as f64 / frame as f64).cos())
+        .collect();
+    let hann_sq: f64 = hann.iter().map(|x| x * x).sum();
+    let fft = planner.plan_fft_forward(frame);
+    let mut input = fft.make_input_vec();
+    let mut output = fft.make_output_vec();
+    let bin_hz = sr / frame as f64;
+    // levels[p][j]: power at partial p in frame j.
+    let mut levels = vec![Vec::with_capacity(n_frames); partials.len()];
+    for j in 0..n_frames {
+        for (i, v) in input.iter_mut().enumerate() {
+            *v = span[j * hop + i] * hann[i];
+        }
+        // Buffers come from the planner, so processing cannot fail.
+        fft.process(&mut input, &mut output)
+            .expect("buffers sized by the planner");
+        for (p, part) in partials.iter().enumerate() {
+            // The nearest bin only: its scalloping loss is the same in
+            // every frame, so it does not bias the slope, and a neighbour
+            // bin may belong to another partial.
+            let k = ((part.frequency_hz / bin_hz).round() as usize).min(output.len() - 1);
+            levels[p].push(output[k].norm_sqr());
+        }
+    }
+    let _ = (spec, hann_sq);
+    for (p, part) in partials.iter_mut().enumerate() {
+        // The quietest frame stands for the noise at this frequency (or,
+        // for a partial that outlasts the span, its last level); the fit
+        // keeps to frames 8 dB above it and within 50 dB of the peak.
+        let db: Vec<f64> = levels[p].iter().map(|&x| 10.0 * (x + 1e-300).log10()).collect();
+        let start = (0..db.len())
+            .max_by(|&a, &b| db[a].total_cmp(&db[b]))
+            .unwrap_or(0);
+        let peak = db[start];
+        let quietest = db[start..].iter().copied().fold(f64::INFINITY, f64::min);
+        let threshold = if peak - quietest > 12.0 {
+            (quietest + 8.0).max(peak - 50.0)
+        } else {
+            f64::NEG_INFINITY
+        };
+        let mut pts = Vec::new();
+        for (j, &v) in db.iter().enumerate().skip(start) {
+            if v < threshold {
+                break;
+            }
+            pts.push(((j * hop + frame / 2) as f64 / sr, v));
+        }
+        if pts.len() < 3 {
+            continue;
+        }
+        let (slope, _) = line_fit(&pts);
+        let rate = -slope;
+        part.decay_rate_db_per_s = Some(rate);
+        if rate > 0.0 {
+            let t60 = 60.0 / rate;
+            let tau = 20.0 / (rate * std::f64::consts::LN_10);
+            part.t60_s = Some(t60);
+            part.q = Some(std::f64::consts::PI * part.frequency_hz * tau);
+        }
+    }
+}
+
+/// Least-squares straight line y = a·x + b; returns (a, b).
+fn line_fit(pts: &[(f64, f64)]) -> (f64, f64) {
+    let n = pts.len() as f64;
+    let mx = pts.iter().map(|p| p.0).sum::<f64>() / n;
+    let my = pts.iter().map(|p| p.1).sum::<f64>() / n;
+    let sxx: f64 = pts.iter().map(|p| (p.0 - mx).powi(2)).sum();
+    let sxy: f64 = pts.iter().map(|p| (p.0 - mx) * (p.1 - my)).sum();
+    let a = if sxx > 0.0 { sxy / sxx } else { 0.0 };
+    (a, my - a * mx)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::f64::consts::PI;
+    use std::path::Path;
+
+    fn tap_signal(sr: f64, parts: &[(f64, f64, f64)], len_s: f64) -> Vec<f64> {
+        let n = (len_s * sr) as usize;
+        let pre = (0.1 * sr) as usize;
+        let mut state = 7u64;
+        (0..n)
+            .map(|i| {
+                state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+                let noise = ((state >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 2e-4;
+                if i < pre {
+                    return noise;
+                }
+                let t = (i - pre) as f64 / sr;
+                noise
+                    + parts
+                        .iter()
+                        .map(|&(f, a, t60)| {
+                            a * (-t * 3.0 * std::f64::consts::LN_10 / t60).exp() * (2.0 * PI * f * t).sin()
+                        })
+                        .sum::<f64>()
+            })
+            .collect()
+    }
+
+    #[test]
+    fn decaying_partials_are_found_with_their_decay() {
+        let sr = 48000.0;
+        let parts = [(180.0, 0.3, 1.2), (287.3, 0.2, 0.8), (411.9, 0.1, 0.5)];
+        let x = tap_signal(sr, &parts, 2.0);
+        let rec = Recording::from_samples(Path::new("t.wav"), x, sr);
+        let a = analyse(&rec, &AnalysisConfig::default()).unwrap();
+        assert_eq!(a.partials.len(), 3, "{:?}", a.partials);
+        for (p, &(f, _, t60)) in a.partials.iter().zip(&parts) {
+            // Tolerances: 0.1 Hz (a quarter of a cent at 400 Hz) allows for
+            // the skirt of a stronger neighbour pulling a fast-decaying peak;
+            // 10 % on T60 allows for the frame-level fit near the noise.
+            assert!((p.frequency_hz - f).abs() < 0.1, "{} vs {}", p.frequency_hz, f);
+            let t = p.t60_s.unwrap();
+            assert!((t / t60 - 1.0).abs() < 0.1, "T60 {t} vs {t60}");
+        }
+    }
+
+    #[test]
+    fn steady_hum_is_set_aside_but_decaying_partial_at_100hz_is_not() {
+        let sr = 48000.0;
+        let mut x = tap_signal(sr, &[(100.0, 0.3, 0.6), (233.0, 0.2, 0.6)], 2.0);
+        for (i, v) in x.iter_mut().enumerate() {
+            let t = i as f64 / sr;
+            // Hum strong enough to be picked as a partial (about 16 dB
+            // below the tap), which is when it must be set aside.
+            *v += 0.05 * (2.0 * PI * 50.02 * t).sin() + 0.03 * (2.0 * PI * 150.06 * t).sin();
+        }
+        let rec = Recording::from_samples(Path::new("t.wav"), x, sr);
+        let a = analyse(&rec, &AnalysisConfig::default()).unwrap();
+        let hum: Vec<f64> = a.hum.iter().map(|h| h.partial.frequency_hz).collect();
+        assert!(hum.iter().any(|f| (f - 50.02).abs() < 0.2), "{hum:?}");
+        assert!(hum.iter().any(|f| (f - 150.06).abs() < 0.3), "{hum:?}");
+        assert!(a.partials.iter().any(|p| (p.frequency_hz - 100.0).abs() < 0.1));
+        assert!(!hum.iter().any(|f| (f - 100.0).abs() < 1.0));
+    }
+}

@@ -1,0 +1,495 @@
+//! Audio input: WAV files into one channel of `f64` samples.
+//!
+//! Conventions: samples are scaled so that digital full scale is 1.0
+//! (integer PCM is divided by 2^(bits−1); float is taken as is), the mean
+//! is subtracted (DC offset removal), and multi-channel files are mixed down
+//! by averaging unless one channel is chosen. This is the only module that
+//! reads files.
+//!
+//! hound decodes PCM 8/16/24/32-bit, float 32 and WAVE_FORMAT_EXTENSIBLE;
+//! it refuses 64-bit float, which this module decodes itself from the RIFF
+//! chunks (format tag 3, or EXTENSIBLE with the IEEE-float sub-format).
+
+use crate::error::{Result, TonusError};
+use serde::Serialize;
+use std::path::{Path, PathBuf};
+
+/// Lowest sample rate accepted, in Hz.
+pub const MIN_SAMPLE_RATE_HZ: u32 = 8_000;
+/// Highest sample rate accepted, in Hz.
+pub const MAX_SAMPLE_RATE_HZ: u32 = 192_000;
+/// Shortest recording that can hold a tap and its decay, in seconds.
+pub const MIN_DURATION_S: f64 = 0.05;
+/// A recording quieter than this peak (full scale = 1) is treated as silence.
+pub const SILENCE_PEAK_FS: f64 = 1e-5;
+/// Clipped fraction above which the recording is refused.
+pub const MAX_CLIPPED_FRACTION: f64 = 0.2;
+
+/// Which channel of a multi-channel file to analyse.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ChannelChoice {
+    /// Average all channels.
+    MixDown,
+    /// Use one channel, counted from 0.
+    Index(usize),
+}
+
+/// How the samples were stored in the file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum SampleFormat {
+    /// Signed (or 8-bit unsigned) integer PCM.
+    Pcm,
+    /// IEEE float.
+    Float,
+}
+
+/// One decoded recording.
+#[derive(Debug, Clone)]
+pub struct Recording {
+    /// Where it came from.
+    pub path: PathBuf,
+    /// Mono samples, full scale 1.0, DC removed.
+    pub samples: Vec<f64>,
+    /// Sample rate in Hz.
+    pub sample_rate_hz: f64,
+    /// Channels in the file (before mix-down).
+    pub channels: u16,
+    /// Bits per sample in the file.
+    pub bits_per_sample: u16,
+    /// Integer or float storage.
+    pub sample_format: SampleFormat,
+    /// Fraction of samples (of the analysed channel(s)) at or stuck near full scale.
+    pub clipped_fraction: f64,
+    /// DC offset that was removed, in full-scale units.
+    pub dc_offset: f64,
+}
+
+impl Recording {
+    /// Duration in seconds.
+    pub fn duration_s(&self) -> f64 {
+        self.samples.len() as f64 / self.sample_rate_hz
+    }
+
+    /// Builds a recording from samples already in memory (synthesis, tests).
+    /// The DC offset is removed; no clipping is assumed beyond |x| ≥ 1.
+    pub fn from_samples(path: &Path, samples: Vec<f64>, sample_rate_hz: f64) -> Recording {
+        let clipped = samples.iter().filter(|x| x.abs() >= 1.0).count();
+        let n = samples.len().max(1) as f64;
+        let mut r = Recording {
+            path: path.to_path_buf(),
+            samples,
+            sample_rate_hz,
+            channels: 1,
+            bits_per_sample: 64,
+            sample_format: SampleFormat::Float,
+            clipped_fraction: clipped as f64 / n,
+            dc_offset: 0.0,
+        };
+        r.dc_offset = remove_dc(&mut r.samples);
+        r
+    }
+}
+
+/// Reads and checks a WAV file.
+///
+/// # Errors
+/// A missing or unreadable file, a file that is not WAV, a truncated data
+/// chunk, an unsupported sample rate, a channel that does not exist, a
+/// recording that is too short, silent, or clipped almost everywhere.
+pub fn read_wav(path: &Path, channel: ChannelChoice) -> Result<Recording> {
+    let bytes = std::fs::read(path).map_err(|e| TonusError::Io {
+        path: path.to_path_buf(),
+        reason: e.to_string(),
+    })?;
+    let header = scan_header(path, &bytes)?;
+    let (interleaved, full_scale_hits) = if header.float && header.bits == 64 {
+        decode_f64(path, &bytes, &header)?
+    } else {
+        decode_with_hound(path, &bytes, &header)?
+    };
+    let channels = header.channels as usize;
+    if channels == 0 {
+        return Err(bad(path, "the file declares 0 channels", "re-export it"));
+    }
+    if let ChannelChoice::Index(i) = channel {
+        if i >= channels {
+            return Err(TonusError::OutOfRange {
+                key: "--channel".into(),
+                value: (i + 1).to_string(),
+                why: format!(
+                    "{} has {} channel(s); choose 1 to {}",
+                    path.display(),
+                    channels,
+                    channels
+                ),
+            });
+        }
+    }
+    let frames = interleaved.len() / channels;
+    let mut samples = Vec::with_capacity(frames);
+    let mut clipped = 0usize;
+    for f in 0..frames {
+        let frame = &interleaved[f * channels..(f + 1) * channels];
+        let hits = &full_scale_hits[f * channels..(f + 1) * channels];
+        match channel {
+            ChannelChoice::MixDown => {
+                samples.push(frame.iter().sum::<f64>() / channels as f64);
+                if hits.iter().any(|&h| h) {
+                    clipped += 1;
+                }
+            }
+            ChannelChoice::Index(i) => {
+                samples.push(frame[i]);
+                if hits[i] {
+                    clipped += 1;
+                }
+            }
+        }
+    }
+    let rate = header.sample_rate;
+    if !(MIN_SAMPLE_RATE_HZ..=MAX_SAMPLE_RATE_HZ).contains(&rate) {
+        return Err(bad(
+            path,
+            &format!("sample rate {rate} Hz is outside 8000..192000 Hz"),
+            "resample the recording to 44.1 or 48 kHz",
+        ));
+    }
+    let duration = frames as f64 / rate as f64;
+    if duration < MIN_DURATION_S {
+        return Err(bad(
+            path,
+            &format!(
+                "the recording is only {frames} sample(s) ({:.1} ms) long",
+                duration * 1e3
+            ),
+            "record at least 0.1 s after the tap (1 s or more is better)",
+        ));
+    }
+    // Flat tops below full scale (clipping in an analogue stage, then
+    // scaled) show as runs of identical extreme samples.
+    clipped += count_flat_tops(&samples);
+    let clipped_fraction = (clipped as f64 / frames as f64).min(1.0);
+    let peak = samples.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    let mut rec = Recording {
+        path: path.to_path_buf(),
+        samples,
+        sample_rate_hz: rate as f64,
+        channels: header.channels,
+        bits_per_sample: header.bits,
+        sample_format: if header.float {
+            SampleFormat::Float
+        } else {
+            SampleFormat::Pcm
+        },
+        clipped_fraction,
+        dc_offset: 0.0,
+    };
+    rec.dc_offset = remove_dc(&mut rec.samples);
+    let peak_ac = rec.samples.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    if peak < SILENCE_PEAK_FS || peak_ac < SILENCE_PEAK_FS {
+        return Err(bad(
+            path,
+            &format!("the recording is silent (peak {:.1e} of full scale)", peak),
+            "check the microphone and input gain, then tap again",
+        ));
+    }
+    if clipped_fraction > MAX_CLIPPED_FRACTION {
+        return Err(bad(
+            path,
+            &format!(
+                "{:.0} % of the samples are clipped",
+                clipped_fraction * 100.0
+            ),
+            "lower the input gain or move the microphone away and record again",
+        ));
+    }
+    Ok(rec)
+}
+
+/// Subtracts the mean and returns it.
+fn remove_dc(samples: &mut [f64]) -> f64 {
+    if samples.is_empty() {
+        return 0.0;
+    }
+    let mean = samples.iter().sum::<f64>() / samples.len() as f64;
+    for x in samples.iter_mut() {
+        *x -= mean;
+    }
+    mean
+}
+
+/// Counts samples in runs of three or more identical values at the
+/// recording's own extreme, when that extreme is loud (above a quarter of
+/// full scale) and not already counted as full scale.
+fn count_flat_tops(samples: &[f64]) -> usize {
+    let peak = samples.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+    if peak < 0.25 || peak >= 0.999 {
+        return 0;
+    }
+    // Identical to the peak within a quantisation step of 24-bit audio.
+    let tol = 1.0 / (1u32 << 23) as f64;
+    let mut count = 0;
+    let mut run = 0;
+    for &x in samples {
+        if (x.abs() - peak).abs() <= tol {
+            run += 1;
+        } else {
+            if run >= 3 {
+                count += run;
+            }
+            run = 0;
+        }
+    }
+    if run >= 3 {
+        count += run;
+    }
+    count
+}
+
+fn bad(path: &Path, problem: &str, hint: &str) -> TonusError {
+    TonusError::BadRecording {
+        path: path.to_path_buf(),
+        problem: problem.to_string(),
+        hint: hint.to_string(),
+    }
+}
+
+fn not_wav(path: &Path, reason: &str) -> TonusError {
+    TonusError::NotWav {
+        path: path.to_path_buf(),
+        reason: reason.to_string(),
+    }
+}
+
+/// What the RIFF header says, read before decoding.
+#[derive(Debug)]
+struct Header {
+    channels: u16,
+    sample_rate: u32,
+    bits: u16,
+    float: bool,
+    block_align: u16,
+    data_offset: usize,
+    data_len: usize,
+}
+
+fn u16_at(b: &[u8], i: usize) -> u16 {
+    u16::from_le_bytes([b[i], b[i + 1]])
+}
+fn u32_at(b: &[u8], i: usize) -> u32 {
+    u32::from_le_bytes([b[i], b[i + 1], b[i + 2], b[i + 3]])
+}
+
+/// Walks the RIFF chunks far enough to know the format and to find a
+/// truncated data chunk before any decoder does.
+fn scan_header(path: &Path, b: &[u8]) -> Result<Header> {
+    if b.is_empty() {
+        return Err(not_wav(path, "the file is empty"));
+    }
+    if b.len() < 12 || &b[0..4] != b"RIFF" || &b[8..12] != b"WAVE" {
+        return Err(not_wav(path, "no RIFF/WAVE header"));
+    }
+    let mut i = 12;
+    let mut fmt: Option<(u16, u16, u32, u16, u16, Option<u16>)> = None;
+    while i + 8 <= b.len() {
+        let id = &b[i..i + 4];
+        let len = u32_at(b, i + 4) as usize;
+        let body = i + 8;
+        if id == b"fmt " {
+            if body + 16 > b.len() || len < 16 {
+                return Err(not_wav(path, "the fmt chunk is cut short"));
+            }
+            let tag = u16_at(b, body);
+            let channels = u16_at(b, body + 2);
+            let rate = u32_at(b, body + 4);
+            let align = u16_at(b, body + 12);
+            let bits = u16_at(b, body + 14);
+            let sub = if tag == 0xFFFE && len >= 40 && body + 26 <= b.len() {
+                Some(u16_at(b, body + 24))
+            } else {
+                None
+            };
+            fmt = Some((tag, channels, rate, align, bits, sub));
+        } else if id == b"data" {
+            let Some((tag, channels, rate, align, bits, sub)) = fmt else {
+                return Err(not_wav(path, "the data chunk comes before the fmt chunk"));
+            };
+            let available = b.len() - body;
+            if len > available {
+                return Err(bad(
+                    path,
+                    &format!(
+                        "the data chunk declares {len} bytes but only {available} are present (the file is truncated)",
+                    ),
+                    "copy or export the recording again",
+                ));
+            }
+            let float = tag == 3 || (tag == 0xFFFE && sub == Some(3));
+            if !(tag == 1 || tag == 3 || tag == 0xFFFE) {
+                return Err(not_wav(
+                    path,
+                    &format!("format tag {tag:#06x} is compressed or unknown"),
+                ));
+            }
+            return Ok(Header {
+                channels,
+                sample_rate: rate,
+                bits,
+                float,
+                block_align: align,
+                data_offset: body,
+                data_len: len,
+            });
+        }
+        // Chunks are padded to an even length.
+        i = body + len + (len & 1);
+    }
+    Err(not_wav(path, "no data chunk"))
+}
+
+/// Decodes through hound; returns interleaved samples and per-sample
+/// full-scale flags.
+fn decode_with_hound(path: &Path, bytes: &[u8], header: &Header) -> Result<(Vec<f64>, Vec<bool>)> {
+    let reader = hound::WavReader::new(std::io::Cursor::new(bytes))
+        .map_err(|e| not_wav(path, &e.to_string()))?;
+    let spec = reader.spec();
+    let mut out = Vec::with_capacity(header.data_len / (header.bits.max(8) as usize / 8).max(1));
+    let mut hits = Vec::with_capacity(out.capacity());
+    let decode_err = |e: hound::Error| {
+        bad(
+            path,
+            &format!("the sample data cannot be decoded ({e})"),
+            "export the recording again as PCM or float WAV",
+        )
+    };
+    match spec.sample_format {
+        hound::SampleFormat::Float => {
+            for s in reader.into_samples::<f32>() {
+                let x = s.map_err(decode_err)? as f64;
+                hits.push(x.abs() >= 0.999);
+                out.push(x);
+            }
+        }
+        hound::SampleFormat::Int => {
+            let bits = spec.bits_per_sample as i32;
+            let scale = 2f64.powi(bits - 1);
+            let max = scale - 1.0;
+            for s in reader.into_samples::<i32>() {
+                let v = s.map_err(decode_err)? as f64;
+                hits.push(v >= max || v <= -scale);
+                out.push(v / scale);
+            }
+        }
+    }
+    Ok((out, hits))
+}
+
+/// Decodes 64-bit IEEE float samples, which hound does not support.
+fn decode_f64(path: &Path, bytes: &[u8], header: &Header) -> Result<(Vec<f64>, Vec<bool>)> {
+    let align = header.block_align as usize;
+    if align != 8 * header.channels as usize {
+        return Err(not_wav(path, "64-bit float with an inconsistent block size"));
+    }
+    let data = &bytes[header.data_offset..header.data_offset + header.data_len];
+    let n = data.len() / 8;
+    let mut out = Vec::with_capacity(n);
+    let mut hits = Vec::with_capacity(n);
+    for k in 0..n {
+        let mut a = [0u8; 8];
+        a.copy_from_slice(&data[8 * k..8 * k + 8]);
+        let x = f64::from_le_bytes(a);
+        if !x.is_finite() {
+            return Err(bad(
+                path,
+                &format!("sample {k} is not a finite number"),
+                "export the recording again",
+            ));
+        }
+        hits.push(x.abs() >= 0.999);
+        out.push(x);
+    }
+    // Whole frames only.
+    let ch = header.channels.max(1) as usize;
+    let whole = out.len() / ch * ch;
+    out.truncate(whole);
+    hits.truncate(whole);
+    Ok((out, hits))
+}
+
+/// Writes mono samples as a WAV file; used by synthesis. `bits` is 16, 24
+/// or 32 (float when `float`). Samples beyond full scale are clipped, as a
+/// real converter would.
+///
+/// The file is written to a temporary name and renamed, so a failure never
+/// leaves a half-written recording.
+pub fn write_wav(path: &Path, samples: &[f64], sample_rate_hz: u32, bits: u16, float: bool) -> Result<()> {
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: sample_rate_hz,
+        bits_per_sample: bits,
+        sample_format: if float {
+            hound::SampleFormat::Float
+        } else {
+            hound::SampleFormat::Int
+        },
+    };
+    let werr = |e: String| TonusError::Write {
+        path: path.to_path_buf(),
+        reason: e,
+    };
+    let tmp = crate::report::temp_path(path);
+    {
+        let mut w = hound::WavWriter::create(&tmp, spec).map_err(|e| werr(e.to_string()))?;
+        let result: std::result::Result<(), hound::Error> = (|| {
+            if float {
+                for &x in samples {
+                    w.write_sample(x.clamp(-1.0, 1.0) as f32)?;
+                }
+            } else {
+                let scale = 2f64.powi(bits as i32 - 1);
+                for &x in samples {
+                    let v = (x * scale).round().clamp(-scale, scale - 1.0) as i32;
+                    w.write_sample(v)?;
+                }
+            }
+            w.finalize()
+        })();
+        if let Err(e) = result {
+            let _ = std::fs::remove_file(&tmp);
+            return Err(werr(e.to_string()));
+        }
+    }
+    std::fs::rename(&tmp, path).map_err(|e| werr(e.to_string()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn dc_is_removed() {
+        let mut x = vec![1.0, 2.0, 3.0];
+        let m = remove_dc(&mut x);
+        assert!((m - 2.0).abs() < 1e-15);
+        assert!(x.iter().sum::<f64>().abs() < 1e-12);
+    }
+
+    #[test]
+    fn flat_tops_are_counted() {
+        let mut x: Vec<f64> = (0..1000).map(|i| 0.3 * (i as f64 * 0.05).sin()).collect();
+        for v in x.iter_mut() {
+            *v = v.clamp(-0.25, 0.25) * 2.0;
+        }
+        assert!(count_flat_tops(&x) > 100);
+        let y: Vec<f64> = (0..1000).map(|i| 0.5 * (i as f64 * 0.05).sin()).collect();
+        assert_eq!(count_flat_tops(&y), 0);
+    }
+
+    #[test]
+    fn truncated_header_is_an_error() {
+        let p = Path::new("x.wav");
+        assert!(scan_header(p, b"").is_err());
+        assert!(scan_header(p, b"RIFF\0\0\0\0WAVE").is_err());
+        assert!(scan_header(p, b"hello world, not audio").is_err());
+    }
+}

@@ -1,0 +1,213 @@
+//! WAV files written by an outside tool (SoX 14.4.2), read and analysed by tonus.
+//!
+//! The fixtures live in tests/fixtures/ and are committed; the tests never run
+//! sox. tests/fixtures/make_fixtures.sh regenerates them byte for byte (`-R`),
+//! and tests/fixtures/README.md lists them. Every tone is a pure sine of 1.0 s,
+//! so its true frequency is exactly the one given to `synth`.
+
+use std::path::PathBuf;
+use tonus::partials::{analyse, AnalysisConfig, Partial};
+use tonus::recording::{read_wav, ChannelChoice, Recording, SampleFormat};
+
+/// Tolerance on every frequency, Hz.
+const FREQ_TOL_HZ: f64 = 0.02;
+
+fn fixture(name: &str) -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests").join("fixtures").join(name)
+}
+
+fn read(name: &str, ch: ChannelChoice) -> Recording {
+    let p = fixture(name);
+    read_wav(&p, ch).unwrap_or_else(|e| panic!("read_wav({}, {ch:?}) failed: {e}", p.display()))
+}
+
+fn partials_of(rec: &Recording) -> Vec<Partial> {
+    let a = analyse(rec, &AnalysisConfig::default())
+        .unwrap_or_else(|e| panic!("analyse({}) failed: {e}", rec.path.display()));
+    assert!(!a.partials.is_empty(), "{}: no partials found", rec.path.display());
+    a.partials
+}
+
+/// Partials sorted by level, strongest first.
+fn by_level(mut p: Vec<Partial>) -> Vec<Partial> {
+    p.sort_by(|a, b| b.level_db.total_cmp(&a.level_db));
+    p
+}
+
+fn describe(p: &[Partial]) -> String {
+    p.iter()
+        .take(8)
+        .map(|q| format!("{:.4} Hz @ {:.1} dB (snr {:.1})", q.frequency_hz, q.level_db, q.snr_db))
+        .collect::<Vec<_>>()
+        .join("; ")
+}
+
+fn rms(x: &[f64]) -> f64 {
+    (x.iter().map(|v| v * v).sum::<f64>() / x.len() as f64).sqrt()
+}
+
+/// Header facts, scaling and DC removal for a 1.0 s fixture whose true RMS is `want_rms`.
+fn check_format(
+    rec: &Recording,
+    rate: f64,
+    channels: u16,
+    bits: u16,
+    format: SampleFormat,
+    want_rms: f64,
+) {
+    let name = rec.path.display();
+    assert_eq!(rec.sample_rate_hz, rate, "{name}: sample rate");
+    assert_eq!(rec.channels, channels, "{name}: channels");
+    assert_eq!(rec.bits_per_sample, bits, "{name}: bits per sample");
+    assert_eq!(rec.sample_format, format, "{name}: sample format");
+    assert_eq!(rec.samples.len(), rate as usize, "{name}: 1.0 s of frames");
+    let mean = rec.samples.iter().sum::<f64>() / rec.samples.len() as f64;
+    assert!(mean.abs() < 1e-12, "{name}: DC not removed (mean {mean:e})");
+    // Full scale = 1.0: a wrong divisor (2^31 for 24-bit, no −128 for 8-bit, …) shows here.
+    let r = rms(&rec.samples);
+    assert!((r / want_rms - 1.0).abs() < 0.01, "{name}: RMS {r:.5}, expected {want_rms:.5}");
+    assert!(rec.clipped_fraction < 1e-3, "{name}: clipped fraction {}", rec.clipped_fraction);
+}
+
+/// The strongest partial is `f_true` within FREQ_TOL_HZ.
+fn check_strongest(rec: &Recording, f_true: f64) -> Vec<Partial> {
+    let p = by_level(partials_of(rec));
+    let f = p[0].frequency_hz;
+    assert!(
+        (f - f_true).abs() <= FREQ_TOL_HZ,
+        "{}: strongest partial at {f:.4} Hz, expected {f_true} Hz ± {FREQ_TOL_HZ}; partials: {}",
+        rec.path.display(),
+        describe(&p)
+    );
+    p
+}
+
+/// The two strongest partials are `f_a` and `f_b` (any order), each within
+/// FREQ_TOL_HZ; they have equal true amplitudes, so their levels agree within 3 dB.
+fn check_two_strongest(rec: &Recording, f_a: f64, f_b: f64) {
+    let p = by_level(partials_of(rec));
+    assert!(p.len() >= 2, "{}: only {}", rec.path.display(), describe(&p));
+    let mut top = [p[0].frequency_hz, p[1].frequency_hz];
+    top.sort_by(|a, b| a.total_cmp(b));
+    let (lo, hi) = if f_a < f_b { (f_a, f_b) } else { (f_b, f_a) };
+    assert!(
+        (top[0] - lo).abs() <= FREQ_TOL_HZ && (top[1] - hi).abs() <= FREQ_TOL_HZ,
+        "{}: two strongest partials at {:.4} and {:.4} Hz, expected {lo} and {hi} Hz ± {FREQ_TOL_HZ}; partials: {}",
+        rec.path.display(),
+        top[0],
+        top[1],
+        describe(&p)
+    );
+    assert!(
+        (p[0].level_db - p[1].level_db).abs() < 3.0,
+        "{}: equal-amplitude tones reported {:.2} dB apart; partials: {}",
+        rec.path.display(),
+        p[0].level_db - p[1].level_db,
+        describe(&p)
+    );
+}
+
+/// No partial near `f` unless at least 60 dB below the strongest (the true level there is −∞).
+fn check_absent(rec: &Recording, p: &[Partial], f: f64) {
+    let top = p[0].level_db;
+    for q in p.iter().filter(|q| (q.frequency_hz - f).abs() < 5.0) {
+        assert!(
+            q.level_db < top - 60.0,
+            "{}: a partial at {:.3} Hz ({:.1} dB) where the channel has no tone; partials: {}",
+            rec.path.display(),
+            q.frequency_hz,
+            q.level_db,
+            describe(p)
+        );
+    }
+}
+
+// A pure sine of amplitude 0.5 has RMS 0.5/√2.
+const RMS_HALF: f64 = 0.353_553_390_593_273_8;
+
+// sox -R -n -r 48000 -b 16 -c 1 sine_440_48k_s16.wav synth 1.0 sine 440 vol 0.5
+// WAVE_FORMAT_PCM (tag 0x0001), 16-bit signed, 48 kHz, mono, 440 Hz, amplitude 0.5.
+#[test]
+fn s16_48k_mono_440() {
+    let rec = read("sine_440_48k_s16.wav", ChannelChoice::MixDown);
+    check_format(&rec, 48_000.0, 1, 16, SampleFormat::Pcm, RMS_HALF);
+    check_strongest(&rec, 440.0);
+}
+
+// sox -R -n -r 44100 -b 24 -c 1 sine_1234p5_44k1_s24.wav synth 1.0 sine 1234.5 vol 0.5
+// WAVE_FORMAT_EXTENSIBLE (tag 0xFFFE, sub-format PCM): sox writes it for > 16 bits.
+// 24-bit signed, 44.1 kHz, mono, 1234.5 Hz (half-integer: between two 1 Hz FFT bins).
+#[test]
+fn s24_extensible_44k1_mono_1234p5() {
+    let rec = read("sine_1234p5_44k1_s24.wav", ChannelChoice::MixDown);
+    check_format(&rec, 44_100.0, 1, 24, SampleFormat::Pcm, RMS_HALF);
+    check_strongest(&rec, 1234.5);
+}
+
+// sox -R -n -r 48000 -e floating-point -b 32 -c 1 sine_997_48k_f32.wav synth 1.0 sine 997 vol 0.5
+// WAVE_FORMAT_IEEE_FLOAT (tag 0x0003, 18-byte fmt, fact chunk), 48 kHz, mono, 997 Hz.
+#[test]
+fn f32_48k_mono_997() {
+    let rec = read("sine_997_48k_f32.wav", ChannelChoice::MixDown);
+    check_format(&rec, 48_000.0, 1, 32, SampleFormat::Float, RMS_HALF);
+    check_strongest(&rec, 997.0);
+}
+
+// sox -R -n -r 8000 -e unsigned-integer -b 8 -c 1 sine_500_8k_u8.wav synth 1.0 sine 500 vol 0.5
+// WAVE_FORMAT_PCM, 8-bit UNSIGNED (offset 128), 8 kHz (the lowest rate tonus accepts), 500 Hz.
+#[test]
+fn u8_8k_mono_500() {
+    let rec = read("sine_500_8k_u8.wav", ChannelChoice::MixDown);
+    check_format(&rec, 8_000.0, 1, 8, SampleFormat::Pcm, RMS_HALF);
+    check_strongest(&rec, 500.0);
+}
+
+// sox -R -n -r 44100 -b 16 -c 2 stereo_300L_700R_44k1_s16.wav synth 1.0 sine 300 sine 700 vol 0.5
+// WAVE_FORMAT_PCM, 16-bit, 44.1 kHz, stereo: channel 0 (left) 300 Hz, channel 1 (right) 700 Hz,
+// each amplitude 0.5.
+const STEREO: &str = "stereo_300L_700R_44k1_s16.wav";
+
+#[test]
+fn stereo_channel_0_is_300() {
+    let rec = read(STEREO, ChannelChoice::Index(0));
+    check_format(&rec, 44_100.0, 2, 16, SampleFormat::Pcm, RMS_HALF);
+    let p = check_strongest(&rec, 300.0);
+    check_absent(&rec, &p, 700.0);
+}
+
+#[test]
+fn stereo_channel_1_is_700() {
+    let rec = read(STEREO, ChannelChoice::Index(1));
+    check_format(&rec, 44_100.0, 2, 16, SampleFormat::Pcm, RMS_HALF);
+    let p = check_strongest(&rec, 700.0);
+    check_absent(&rec, &p, 300.0);
+}
+
+#[test]
+fn stereo_mixdown_has_both() {
+    let rec = read(STEREO, ChannelChoice::MixDown);
+    // Average of the channels: two tones of amplitude 0.25, RMS 0.25.
+    check_format(&rec, 44_100.0, 2, 16, SampleFormat::Pcm, 0.25);
+    check_two_strongest(&rec, 300.0, 700.0);
+}
+
+#[test]
+fn stereo_channel_out_of_range_is_an_error() {
+    let r = read_wav(&fixture(STEREO), ChannelChoice::Index(2));
+    assert!(r.is_err(), "channel index 2 of a stereo file must be refused");
+    // Index(0) of a mono file is the file itself.
+    let a = read("sine_440_48k_s16.wav", ChannelChoice::Index(0));
+    let b = read("sine_440_48k_s16.wav", ChannelChoice::MixDown);
+    assert_eq!(a.samples, b.samples);
+    assert!(read_wav(&fixture("sine_440_48k_s16.wav"), ChannelChoice::Index(1)).is_err());
+}
+
+// sox -R -n -r 44100 -b 16 -c 1 two_tone_220_587p3_44k1_s16.wav synth 1.0 sine 220 synth 1.0 sine mix 587.3 vol 0.8
+// WAVE_FORMAT_PCM, 16-bit, 44.1 kHz, mono. `mix` averages the second synth with the
+// first, so each tone has amplitude 0.5 · 0.8 = 0.4: RMS √(2 · 0.4²/2) = 0.4.
+#[test]
+fn two_tone_220_and_587p3() {
+    let rec = read("two_tone_220_587p3_44k1_s16.wav", ChannelChoice::MixDown);
+    check_format(&rec, 44_100.0, 1, 16, SampleFormat::Pcm, 0.4);
+    check_two_strongest(&rec, 220.0, 587.3);
+}
