@@ -6,7 +6,9 @@
 //! modes → [`fit`] fits the wave speed and tension → [`report`] writes the
 //! results. [`synth`] makes test and demo recordings by modal synthesis.
 
+pub mod bessel;
 pub mod error;
+pub mod membrane;
 pub mod partials;
 pub mod recording;
 pub mod spectrum;

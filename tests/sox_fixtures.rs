@@ -73,6 +73,7 @@ fn check_format(
 fn check_strongest(rec: &Recording, f_true: f64) -> Vec<Partial> {
     let p = by_level(partials_of(rec));
     let f = p[0].frequency_hz;
+    eprintln!("{}: strongest {f:.5} Hz (error {:+.2e} Hz)", rec.path.display(), f - f_true);
     assert!(
         (f - f_true).abs() <= FREQ_TOL_HZ,
         "{}: strongest partial at {f:.4} Hz, expected {f_true} Hz ± {FREQ_TOL_HZ}; partials: {}",
@@ -90,6 +91,14 @@ fn check_two_strongest(rec: &Recording, f_a: f64, f_b: f64) {
     let mut top = [p[0].frequency_hz, p[1].frequency_hz];
     top.sort_by(|a, b| a.total_cmp(b));
     let (lo, hi) = if f_a < f_b { (f_a, f_b) } else { (f_b, f_a) };
+    eprintln!(
+        "{}: two strongest {:.5} / {:.5} Hz (errors {:+.2e} / {:+.2e} Hz)",
+        rec.path.display(),
+        top[0],
+        top[1],
+        top[0] - lo,
+        top[1] - hi
+    );
     assert!(
         (top[0] - lo).abs() <= FREQ_TOL_HZ && (top[1] - hi).abs() <= FREQ_TOL_HZ,
         "{}: two strongest partials at {:.4} and {:.4} Hz, expected {lo} and {hi} Hz ± {FREQ_TOL_HZ}; partials: {}",
