@@ -8,10 +8,12 @@
 
 pub mod bessel;
 pub mod error;
+pub mod matching;
 pub mod membrane;
 pub mod partials;
 pub mod recording;
 pub mod spectrum;
+pub mod synth;
 pub mod tap;
 pub mod units;
 pub mod warning;

@@ -22,6 +22,8 @@ pub const MAX_SAMPLE_RATE_HZ: u32 = 192_000;
 pub const MIN_DURATION_S: f64 = 0.05;
 /// A recording quieter than this peak (full scale = 1) is treated as silence.
 pub const SILENCE_PEAK_FS: f64 = 1e-5;
+/// Shortest run of identical extreme samples counted as a flat top.
+pub const FLAT_TOP_RUN: usize = 12;
 /// Clipped fraction above which the recording is refused.
 pub const MAX_CLIPPED_FRACTION: f64 = 0.2;
 
@@ -218,29 +220,31 @@ fn remove_dc(samples: &mut [f64]) -> f64 {
     mean
 }
 
-/// Counts samples in runs of three or more identical values at the
-/// recording's own extreme, when that extreme is loud (above a quarter of
-/// full scale) and not already counted as full scale.
+/// Counts samples in runs of [`FLAT_TOP_RUN`] or more identical values at
+/// the recording's own extreme, when that extreme is loud (above a quarter
+/// of full scale) and not already counted as full scale. The run length is
+/// long enough that the quantised crest of a clean low tone (about eight
+/// equal 16-bit samples for 20 Hz at 48 kHz) does not count.
 fn count_flat_tops(samples: &[f64]) -> usize {
     let peak = samples.iter().fold(0.0f64, |m, x| m.max(x.abs()));
     if peak < 0.25 || peak >= 0.999 {
         return 0;
     }
-    // Identical to the peak within a quantisation step of 24-bit audio.
-    let tol = 1.0 / (1u32 << 23) as f64;
+    // Identical to the peak: stuck samples are bit-identical.
+    let tol = 1e-12;
     let mut count = 0;
     let mut run = 0;
     for &x in samples {
         if (x.abs() - peak).abs() <= tol {
             run += 1;
         } else {
-            if run >= 3 {
+            if run >= FLAT_TOP_RUN {
                 count += run;
             }
             run = 0;
         }
     }
-    if run >= 3 {
+    if run >= FLAT_TOP_RUN {
         count += run;
     }
     count
@@ -476,7 +480,7 @@ mod tests {
 
     #[test]
     fn flat_tops_are_counted() {
-        let mut x: Vec<f64> = (0..1000).map(|i| 0.3 * (i as f64 * 0.05).sin()).collect();
+        let mut x: Vec<f64> = (0..1000).map(|i| 0.3 * (i as f64 * 0.01).sin()).collect();
         for v in x.iter_mut() {
             *v = v.clamp(-0.25, 0.25) * 2.0;
         }

@@ -17,9 +17,10 @@
 //! smooth (and their grid samples are even exact eigenvectors of the discrete
 //! operator), so each eigenvalue has an expansion
 //!   λ_h = λ + A·h² + B·h⁴ + C·h⁶ + …   (A < 0: the 5-point stencil underestimates).
-//! For a sine of wavenumber k per direction, (4/h²)·sin²(kh/2) = k²·(1 − (kh)²/12
-//! + (kh)⁴/360 − (kh)⁶/20160 + …). One Richardson step on two grids removes the
-//! h² term, a second step on three grids removes h⁴, leaving O(h⁶).
+//! For a sine of wavenumber k per direction, the discrete eigenvalue is
+//! (4/h²)·sin²(kh/2) = k²·(1 − (kh)²/12 + (kh)⁴/360 − (kh)⁶/20160 + …).
+//! One Richardson step on two grids removes the h² term, a second step on
+//! three grids removes h⁴, leaving O(h⁶).
 //! With the grids below the one-step value is still ~1e-4 off for the 8th mode;
 //! after two steps the residual is ~1e-6, well inside the 1e-4 tolerance.
 //!
@@ -57,8 +58,15 @@ impl Grid {
         assert_eq!(nx_intervals % 4, 0, "Nx must be a multiple of 4");
         let ny_intervals = 3 * nx_intervals / 4;
         let h = LX / nx_intervals as f64;
-        assert!((LY / ny_intervals as f64 - h).abs() < 1e-15, "spacing must be equal in x and y");
-        Grid { nx: nx_intervals - 1, ny: ny_intervals - 1, h }
+        assert!(
+            (LY / ny_intervals as f64 - h).abs() < 1e-15,
+            "spacing must be equal in x and y"
+        );
+        Grid {
+            nx: nx_intervals - 1,
+            ny: ny_intervals - 1,
+            h,
+        }
     }
     fn len(&self) -> usize {
         self.nx * self.ny
@@ -169,7 +177,11 @@ fn rect_mode_frequencies_match_extrapolated_finite_difference_eigenvalues() {
                     best.2
                 );
             }
-            order.iter().take(N_MODES + 1).map(|&p| eig.eigenvalues[p]).collect()
+            order
+                .iter()
+                .take(N_MODES + 1)
+                .map(|&p| eig.eigenvalues[p])
+                .collect()
         } else {
             sorted(a.symmetric_eigenvalues().iter().copied().collect())
                 .into_iter()
@@ -188,7 +200,10 @@ fn rect_mode_frequencies_match_extrapolated_finite_difference_eigenvalues() {
     for k in 0..N_MODES {
         let (l1, l2, l3) = (lambdas[0][k], lambdas[1][k], lambdas[2][k]);
         // 5-point stencil underestimates, and the error shrinks with h.
-        assert!(l1 < l2 && l2 < l3, "mode rank {k}: eigenvalues not increasing with refinement: {l1} {l2} {l3}");
+        assert!(
+            l1 < l2 && l2 < l3,
+            "mode rank {k}: eigenvalues not increasing with refinement: {l1} {l2} {l3}"
+        );
         let ratio = (l2 - l1) / (l3 - l2);
         assert!(
             (ratio / h2_ratio - 1.0).abs() < 0.05,
@@ -210,13 +225,20 @@ fn rect_mode_frequencies_match_extrapolated_finite_difference_eigenvalues() {
             (freq_from_lambda(l3) / f_lib - 1.0).abs(),
             (freq_from_lambda(l23) / f_lib - 1.0).abs()
         );
-        assert!(rel < 1e-4, "mode ({m},{n}): library {f_lib} Hz vs numerical {f_num} Hz, rel error {rel:.3e}");
+        assert!(
+            rel < 1e-4,
+            "mode ({m},{n}): library {f_lib} Hz vs numerical {f_num} Hz, rel error {rel:.3e}"
+        );
     }
 
     // The 9th eigenvalue stays above the 8th on every grid, so "the lowest 8" is
     // the same set of modes everywhere.
     for (g, l) in grids.iter().zip(&lambdas) {
-        assert!(l[N_MODES] > l[N_MODES - 1] * 1.02, "h = {}: 8th and 9th eigenvalues too close", g.h);
+        assert!(
+            l[N_MODES] > l[N_MODES - 1] * 1.02,
+            "h = {}: 8th and 9th eigenvalues too close",
+            g.h
+        );
     }
     eprintln!("eigen solves took {:?}, total {:?}", t_solve, t0.elapsed());
 }

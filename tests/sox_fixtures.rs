@@ -13,7 +13,10 @@ use tonus::recording::{read_wav, ChannelChoice, Recording, SampleFormat};
 const FREQ_TOL_HZ: f64 = 0.02;
 
 fn fixture(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests").join("fixtures").join(name)
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("tests")
+        .join("fixtures")
+        .join(name)
 }
 
 fn read(name: &str, ch: ChannelChoice) -> Recording {
@@ -24,7 +27,11 @@ fn read(name: &str, ch: ChannelChoice) -> Recording {
 fn partials_of(rec: &Recording) -> Vec<Partial> {
     let a = analyse(rec, &AnalysisConfig::default())
         .unwrap_or_else(|e| panic!("analyse({}) failed: {e}", rec.path.display()));
-    assert!(!a.partials.is_empty(), "{}: no partials found", rec.path.display());
+    assert!(
+        !a.partials.is_empty(),
+        "{}: no partials found",
+        rec.path.display()
+    );
     a.partials
 }
 
@@ -37,7 +44,12 @@ fn by_level(mut p: Vec<Partial>) -> Vec<Partial> {
 fn describe(p: &[Partial]) -> String {
     p.iter()
         .take(8)
-        .map(|q| format!("{:.4} Hz @ {:.1} dB (snr {:.1})", q.frequency_hz, q.level_db, q.snr_db))
+        .map(|q| {
+            format!(
+                "{:.4} Hz @ {:.1} dB (snr {:.1})",
+                q.frequency_hz, q.level_db, q.snr_db
+            )
+        })
         .collect::<Vec<_>>()
         .join("; ")
 }
@@ -65,15 +77,26 @@ fn check_format(
     assert!(mean.abs() < 1e-12, "{name}: DC not removed (mean {mean:e})");
     // Full scale = 1.0: a wrong divisor (2^31 for 24-bit, no −128 for 8-bit, …) shows here.
     let r = rms(&rec.samples);
-    assert!((r / want_rms - 1.0).abs() < 0.01, "{name}: RMS {r:.5}, expected {want_rms:.5}");
-    assert!(rec.clipped_fraction < 1e-3, "{name}: clipped fraction {}", rec.clipped_fraction);
+    assert!(
+        (r / want_rms - 1.0).abs() < 0.01,
+        "{name}: RMS {r:.5}, expected {want_rms:.5}"
+    );
+    assert!(
+        rec.clipped_fraction < 1e-3,
+        "{name}: clipped fraction {}",
+        rec.clipped_fraction
+    );
 }
 
 /// The strongest partial is `f_true` within FREQ_TOL_HZ.
 fn check_strongest(rec: &Recording, f_true: f64) -> Vec<Partial> {
     let p = by_level(partials_of(rec));
     let f = p[0].frequency_hz;
-    eprintln!("{}: strongest {f:.5} Hz (error {:+.2e} Hz)", rec.path.display(), f - f_true);
+    eprintln!(
+        "{}: strongest {f:.5} Hz (error {:+.2e} Hz)",
+        rec.path.display(),
+        f - f_true
+    );
     assert!(
         (f - f_true).abs() <= FREQ_TOL_HZ,
         "{}: strongest partial at {f:.4} Hz, expected {f_true} Hz ± {FREQ_TOL_HZ}; partials: {}",
@@ -87,7 +110,12 @@ fn check_strongest(rec: &Recording, f_true: f64) -> Vec<Partial> {
 /// FREQ_TOL_HZ; they have equal true amplitudes, so their levels agree within 3 dB.
 fn check_two_strongest(rec: &Recording, f_a: f64, f_b: f64) {
     let p = by_level(partials_of(rec));
-    assert!(p.len() >= 2, "{}: only {}", rec.path.display(), describe(&p));
+    assert!(
+        p.len() >= 2,
+        "{}: only {}",
+        rec.path.display(),
+        describe(&p)
+    );
     let mut top = [p[0].frequency_hz, p[1].frequency_hz];
     top.sort_by(|a, b| a.total_cmp(b));
     let (lo, hi) = if f_a < f_b { (f_a, f_b) } else { (f_b, f_a) };
@@ -203,7 +231,10 @@ fn stereo_mixdown_has_both() {
 #[test]
 fn stereo_channel_out_of_range_is_an_error() {
     let r = read_wav(&fixture(STEREO), ChannelChoice::Index(2));
-    assert!(r.is_err(), "channel index 2 of a stereo file must be refused");
+    assert!(
+        r.is_err(),
+        "channel index 2 of a stereo file must be refused"
+    );
     // Index(0) of a mono file is the file itself.
     let a = read("sine_440_48k_s16.wav", ChannelChoice::Index(0));
     let b = read("sine_440_48k_s16.wav", ChannelChoice::MixDown);

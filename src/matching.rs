@@ -1,0 +1,372 @@
+//! Mode matching: which measured partial is which predicted mode.
+//!
+//! No starting guess is needed from the user. Each hypothesis fixes the
+//! wave speed c by pairing one of the strongest or lowest partials with one
+//! of the lowest predicted lines; partials are then assigned to their
+//! nearest line (in cents), c is re-estimated from the assignment, and the
+//! two steps repeat until the assignment stops changing.
+//!
+//! Hypotheses are ranked by a log-likelihood ratio against "every partial
+//! is spurious":
+//! - a partial assigned with residual r (cents) adds
+//!   ln(B / (s√(2π))) − r²/(2s²), with B the searched band in cents and s
+//!   [`MATCH_SCATTER_CENTS`] the scatter the model is allowed;
+//! - a predicted line inside the matched band with no partial adds
+//!   ln(1 − p·κ), κ its expected coupling at the tap and pickup points and p
+//!   [`DETECTION_PROBABILITY`], so a hypothesis that explains the partials
+//!   with a denser set of lines (half the true wave speed, say) pays for
+//!   the lines it predicts and does not see.
+//!
+//! Two hypotheses with different c whose scores differ by less than
+//! [`AMBIGUITY_MARGIN`] (a likelihood ratio of about 7) are reported as
+//! ambiguous rather than one being picked silently.
+
+use crate::membrane::ModeLine;
+use crate::partials::Partial;
+use serde::Serialize;
+
+/// Scatter of measured partials about the model allowed in matching, cents.
+pub const MATCH_SCATTER_CENTS: f64 = 15.0;
+/// A partial further than this from every line is not assigned, cents.
+pub const MATCH_GATE_CENTS: f64 = 50.0;
+/// Probability that a line with full coupling shows a partial.
+pub const DETECTION_PROBABILITY: f64 = 0.6;
+/// Score margin (natural-log units) under which two hypotheses are ambiguous.
+pub const AMBIGUITY_MARGIN: f64 = 2.0;
+/// Partials tried as the anchor of a hypothesis (strongest and lowest).
+pub const ANCHOR_PARTIALS: usize = 6;
+/// Lines tried as the anchor of a hypothesis (lowest).
+pub const ANCHOR_LINES: usize = 10;
+/// Coupling below which a line is expected to be weak or absent.
+pub const WEAK_COUPLING: f64 = 0.15;
+
+/// One partial assigned to one line.
+#[derive(Debug, Clone, Serialize)]
+pub struct Assignment {
+    /// Index into the partial list.
+    pub partial: usize,
+    /// Index into the line list.
+    pub line: usize,
+    /// ln(f_measured / (c·g)) × 1200/ln 2, cents.
+    pub residual_cents: f64,
+    /// Other lines within the matching scatter of this partial: labels
+    /// that would explain it as well.
+    pub alternatives: Vec<usize>,
+}
+
+/// The chosen labelling and how sure it is.
+#[derive(Debug, Clone, Serialize)]
+pub struct Matching {
+    /// Wave speed of the hypothesis, m/s.
+    pub wave_speed_m_per_s: f64,
+    /// The assignments, sorted by partial frequency.
+    pub assignments: Vec<Assignment>,
+    /// Partials left unassigned (indices).
+    pub unmatched: Vec<usize>,
+    /// Lines in the matched band that should be visible but have no partial.
+    pub missing: Vec<usize>,
+    /// Score of the hypothesis.
+    pub score: f64,
+    /// The runner-up with a different wave speed, if it is within the
+    /// ambiguity margin: (wave speed m/s, score, number assigned).
+    pub rival: Option<(f64, f64, usize)>,
+    /// Hypotheses examined.
+    pub hypotheses: usize,
+}
+
+impl Matching {
+    /// True when a rival explains the data almost equally well.
+    pub fn is_ambiguous(&self) -> bool {
+        self.rival.is_some()
+    }
+}
+
+const CENTS_PER_LN: f64 = 1200.0 / std::f64::consts::LN_2;
+
+fn cents(f: f64, pred: f64) -> f64 {
+    CENTS_PER_LN * (f / pred).ln()
+}
+
+/// Matches partials (any order) to lines (sorted by factor).
+/// Returns None with fewer than one partial or no line.
+pub fn match_modes(partials: &[Partial], lines: &[ModeLine], band_hz: (f64, f64)) -> Option<Matching> {
+    if partials.is_empty() || lines.is_empty() {
+        return None;
+    }
+    let band_cents = cents(band_hz.1.max(band_hz.0 * 2.0), band_hz.0.max(1.0)).max(1200.0);
+    let mut by_level: Vec<usize> = (0..partials.len()).collect();
+    by_level.sort_by(|&a, &b| partials[b].level_db.total_cmp(&partials[a].level_db));
+    let mut by_freq: Vec<usize> = (0..partials.len()).collect();
+    by_freq.sort_by(|&a, &b| partials[a].frequency_hz.total_cmp(&partials[b].frequency_hz));
+    let mut anchors: Vec<usize> = by_level.iter().take(ANCHOR_PARTIALS).copied().collect();
+    for &i in by_freq.iter().take(ANCHOR_PARTIALS) {
+        if !anchors.contains(&i) {
+            anchors.push(i);
+        }
+    }
+    let mut seeds: Vec<f64> = Vec::new();
+    for &i in &anchors {
+        for line in lines.iter().take(ANCHOR_LINES) {
+            seeds.push(partials[i].frequency_hz / line.factor);
+        }
+    }
+    let mut results: Vec<Matching> = Vec::new();
+    for c0 in seeds {
+        let m = refine(partials, lines, c0, band_cents);
+        // Keep one result per distinct wave speed (within a cent).
+        if let Some(same) = results
+            .iter_mut()
+            .find(|r| cents(r.wave_speed_m_per_s, m.wave_speed_m_per_s).abs() < 1.0)
+        {
+            if m.score > same.score {
+                *same = m;
+            }
+        } else {
+            results.push(m);
+        }
+    }
+    let hypotheses = results.len();
+    results.sort_by(|a, b| b.score.total_cmp(&a.score));
+    let mut best = results.first()?.clone();
+    best.hypotheses = hypotheses;
+    best.rival = results
+        .iter()
+        .skip(1)
+        .find(|r| {
+            cents(r.wave_speed_m_per_s, best.wave_speed_m_per_s).abs() > 2.0 * MATCH_SCATTER_CENTS
+                && !r.assignments.is_empty()
+        })
+        .filter(|r| best.score - r.score < AMBIGUITY_MARGIN)
+        .map(|r| (r.wave_speed_m_per_s, r.score, r.assignments.len()));
+    Some(best)
+}
+
+/// Alternating assignment and re-estimation of c from a seed.
+fn refine(partials: &[Partial], lines: &[ModeLine], c0: f64, band_cents: f64) -> Matching {
+    let mut c = c0;
+    let mut assignments = assign(partials, lines, c);
+    for _ in 0..6 {
+        if assignments.is_empty() {
+            break;
+        }
+        // ln c = mean of ln(f/g) over the assignment.
+        let mean = assignments
+            .iter()
+            .map(|a| (partials[a.partial].frequency_hz / lines[a.line].factor).ln())
+            .sum::<f64>()
+            / assignments.len() as f64;
+        let c_new = mean.exp();
+        let next = assign(partials, lines, c_new);
+        let same = next.len() == assignments.len()
+            && next
+                .iter()
+                .zip(&assignments)
+                .all(|(a, b)| a.partial == b.partial && a.line == b.line);
+        c = c_new;
+        assignments = next;
+        if same {
+            break;
+        }
+    }
+    score(partials, lines, c, assignments, band_cents)
+}
+
+/// Nearest-line assignment at wave speed c. A line takes at most one
+/// partial per physical mode it stands for (a split pair takes two); the
+/// closest partials win.
+fn assign(partials: &[Partial], lines: &[ModeLine], c: f64) -> Vec<Assignment> {
+    let mut cands: Vec<Assignment> = Vec::new();
+    for (i, p) in partials.iter().enumerate() {
+        let g = p.frequency_hz / c;
+        let k = lines.partition_point(|l| l.factor < g);
+        let mut best: Option<(usize, f64)> = None;
+        for j in k.saturating_sub(1)..(k + 1).min(lines.len()) {
+            let r = cents(p.frequency_hz, c * lines[j].factor);
+            if best.is_none_or(|(_, br)| r.abs() < br.abs()) {
+                best = Some((j, r));
+            }
+        }
+        if let Some((j, r)) = best {
+            // A line expected silent at the tap point takes a partial only
+            // when it sits very close; otherwise the partial is more likely
+            // spurious.
+            let gate = if lines[j].coupling < WEAK_COUPLING {
+                MATCH_SCATTER_CENTS
+            } else {
+                MATCH_GATE_CENTS
+            };
+            if r.abs() <= gate {
+                let mut alternatives = Vec::new();
+                let mut lo = j;
+                while lo > 0 && cents(p.frequency_hz, c * lines[lo - 1].factor).abs() < MATCH_SCATTER_CENTS {
+                    lo -= 1;
+                    alternatives.push(lo);
+                }
+                let mut hi = j + 1;
+                while hi < lines.len() && cents(p.frequency_hz, c * lines[hi].factor).abs() < MATCH_SCATTER_CENTS {
+                    alternatives.push(hi);
+                    hi += 1;
+                }
+                cands.push(Assignment {
+                    partial: i,
+                    line: j,
+                    residual_cents: r,
+                    alternatives,
+                });
+            }
+        }
+    }
+    cands.sort_by(|a, b| a.residual_cents.abs().total_cmp(&b.residual_cents.abs()));
+    let mut used = vec![0usize; lines.len()];
+    let mut out = Vec::new();
+    for a in cands {
+        if used[a.line] < lines[a.line].degeneracy.max(1) {
+            used[a.line] += 1;
+            out.push(a);
+        }
+    }
+    out.sort_by(|a, b| partials[a.partial].frequency_hz.total_cmp(&partials[b.partial].frequency_hz));
+    out
+}
+
+fn score(partials: &[Partial], lines: &[ModeLine], c: f64, assignments: Vec<Assignment>, band_cents: f64) -> Matching {
+    let s = MATCH_SCATTER_CENTS;
+    let per_match = (band_cents / (s * (2.0 * std::f64::consts::PI).sqrt())).ln();
+    let mut total = 0.0;
+    for a in &assignments {
+        total += per_match - a.residual_cents.powi(2) / (2.0 * s * s);
+    }
+    let mut matched_line = vec![false; lines.len()];
+    for a in &assignments {
+        matched_line[a.line] = true;
+    }
+    let top = assignments
+        .iter()
+        .map(|a| partials[a.partial].frequency_hz)
+        .fold(0.0, f64::max);
+    let mut missing = Vec::new();
+    for (j, l) in lines.iter().enumerate() {
+        let f = c * l.factor;
+        if f > top * (1.0 + 1e-9) {
+            break;
+        }
+        if !matched_line[j] {
+            total += (1.0 - DETECTION_PROBABILITY * l.coupling).ln();
+            if l.coupling >= WEAK_COUPLING {
+                missing.push(j);
+            }
+        }
+    }
+    let assigned: Vec<bool> = {
+        let mut v = vec![false; partials.len()];
+        for a in &assignments {
+            v[a.partial] = true;
+        }
+        v
+    };
+    let unmatched = (0..partials.len()).filter(|&i| !assigned[i]).collect();
+    Matching {
+        wave_speed_m_per_s: c,
+        assignments,
+        unmatched,
+        missing,
+        score: total,
+        rival: None,
+        hypotheses: 0,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::membrane::{Point, Shape};
+    use crate::units::Meters;
+
+    fn partial(f: f64, level: f64) -> Partial {
+        Partial {
+            frequency_hz: f,
+            level_db: level,
+            snr_db: 30.0,
+            prominence_db: 20.0,
+            decay_rate_db_per_s: Some(50.0),
+            t60_s: Some(1.2),
+            q: None,
+        }
+    }
+
+    #[test]
+    fn rectangle_with_missing_modes_and_spurious_peaks() {
+        let shape = Shape::Rectangle {
+            width: Meters(0.4),
+            height: Meters(0.3),
+        };
+        let c = 98.0;
+        let tap = Point { u: 0.5, v: Some(0.31) };
+        let lines = shape.lines(3000.0 / c, Some(tap), None);
+        // Every line with coupling except the even-m family (tap at x/Lx =
+        // 0.5), plus two spurious peaks.
+        let truth: Vec<usize> = (0..lines.len()).filter(|&j| lines[j].coupling > 0.2).take(12).collect();
+        let mut ps: Vec<Partial> = truth
+            .iter()
+            .map(|&j| partial(lines[j].factor * c * (1.0 + 0.0004), -20.0))
+            .collect();
+        ps.push(partial(333.0, -25.0));
+        ps.push(partial(1234.0, -35.0));
+        let m = match_modes(&ps, &lines, (20.0, 3000.0)).unwrap();
+        assert!((m.wave_speed_m_per_s / c - 1.0004).abs() < 1e-3, "{}", m.wave_speed_m_per_s);
+        // Each true partial on its own line. Lines are dense at 1.2 kHz
+        // (about 15 cents apart), so a spurious peak there may also find a
+        // line; the fit's outlier test deals with it.
+        for (i, &j) in truth.iter().enumerate() {
+            let a = m.assignments.iter().find(|a| a.partial == i).unwrap();
+            assert_eq!(a.line, j);
+        }
+        assert!(m.unmatched.contains(&12), "333 Hz lies between lines");
+        assert!(!m.is_ambiguous());
+    }
+
+    #[test]
+    fn circle_without_fundamental() {
+        let shape = Shape::Circle { radius: Meters(0.178) };
+        let c = 120.0;
+        let lines = shape.lines(4000.0 / c, None, None);
+        let ps: Vec<Partial> = lines
+            .iter()
+            .skip(1)
+            .take(10)
+            .map(|l| partial(l.factor * c, -20.0))
+            .collect();
+        let m = match_modes(&ps, &lines, (20.0, 4000.0)).unwrap();
+        assert!((m.wave_speed_m_per_s / c - 1.0).abs() < 1e-6);
+        assert_eq!(m.assignments[0].line, 1);
+    }
+
+    #[test]
+    fn a_single_partial_is_ambiguous() {
+        // One partial fits any line: the labelling cannot be decided.
+        let shape = Shape::Rectangle {
+            width: Meters(0.4),
+            height: Meters(0.4),
+        };
+        let lines = shape.lines(50.0, None, None);
+        let m = match_modes(&[partial(250.0, -10.0)], &lines, (20.0, 1000.0)).unwrap();
+        assert!(m.is_ambiguous(), "score {} hyps {}", m.score, m.hypotheses);
+    }
+
+    #[test]
+    fn octave_pair_on_a_square_is_the_fundamental_and_2_2() {
+        // f(2,2) = 2·f(1,1); the alternative (1,2)&(2,4) at a lower wave
+        // speed predicts many lines that are not there.
+        let shape = Shape::Rectangle {
+            width: Meters(0.4),
+            height: Meters(0.4),
+        };
+        let lines = shape.lines(50.0, None, None);
+        let c = 100.0;
+        let f11 = lines[0].factor * c;
+        let ps = vec![partial(f11, -10.0), partial(2.0 * f11, -12.0)];
+        let m = match_modes(&ps, &lines, (20.0, 1000.0)).unwrap();
+        assert!((m.wave_speed_m_per_s / c - 1.0).abs() < 1e-9);
+        assert_eq!(lines[m.assignments[1].line].labels, vec![(2, 2)]);
+    }
+}
