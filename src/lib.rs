@@ -7,23 +7,20 @@
 //! results. [`synth`] makes test and demo recordings by modal synthesis.
 
 pub mod bessel;
+pub mod cli;
+pub mod commands;
 pub mod error;
+pub mod fit;
 pub mod matching;
 pub mod membrane;
+pub mod panel;
 pub mod partials;
+pub mod pipeline;
+pub mod quality;
 pub mod recording;
 pub mod spectrum;
 pub mod synth;
 pub mod tap;
 pub mod units;
 pub mod warning;
-pub mod report {
-    //! placeholder
-    use std::path::{Path, PathBuf};
-    /// Temporary sibling path used for atomic writes.
-    pub fn temp_path(p: &Path) -> PathBuf {
-        let mut s = p.as_os_str().to_owned();
-        s.push(".part");
-        PathBuf::from(s)
-    }
-}
+pub mod report;

@@ -1,1 +1,106 @@
-fn main() {}
+//! The `tonus` binary: parses arguments, calls one library function per
+//! subcommand, prints the result or the error on one line, sets the exit
+//! status (0 done, 1 fit doubtful/unfit or a demo file failed, 2 error).
+
+use clap::Parser;
+use std::process::ExitCode;
+use tonus::cli::{self, Cli, Command};
+use tonus::commands::{self, Outcome};
+use tonus::error::Result;
+
+fn run(cli: Cli) -> Result<Outcome> {
+    match cli.command {
+        Command::Partials { recording, input, json } => {
+            commands::partials(&recording, input.channel()?, &input.analysis()?, json)
+        }
+        Command::Fit {
+            recording,
+            panel,
+            input,
+            free_aspect,
+            tension_unit,
+            json,
+            out,
+            no_picture,
+        } => commands::fit(
+            &recording,
+            input.channel()?,
+            &panel.to_panel()?,
+            &cli::fit_options(free_aspect, &input)?,
+            cli::tension_unit(&tension_unit)?,
+            json,
+            out.as_deref(),
+            !no_picture,
+        ),
+        Command::Modes {
+            panel,
+            tension,
+            fundamental,
+            count,
+            tension_unit,
+            json,
+        } => commands::modes(
+            &panel.to_panel()?,
+            tension.as_deref(),
+            fundamental.as_deref(),
+            count,
+            cli::tension_unit(&tension_unit)?,
+            json,
+        ),
+        Command::Synth {
+            panel,
+            tension,
+            output,
+            snr,
+            t60,
+            tap_duration,
+            length,
+            pre_roll,
+            rate,
+            bits,
+            hum,
+            hum_level,
+            extra_tone,
+            taps,
+            tap_interval,
+            gain,
+            seed,
+        } => {
+            let cfg = cli::synth_config(
+                &panel,
+                &tension,
+                snr,
+                t60.as_deref(),
+                tap_duration.as_deref(),
+                length.as_deref(),
+                pre_roll.as_deref(),
+                rate,
+                hum.as_deref(),
+                hum_level,
+                &extra_tone,
+                taps,
+                tap_interval.as_deref(),
+                gain,
+                seed,
+            )?;
+            let (b, float) = cli::sample_format(&bits)?;
+            commands::synth(&cfg, &output, b, float)
+        }
+        Command::Demo { recordings, out } => commands::demo(&recordings, &out),
+    }
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    match run(cli) {
+        Ok(o) => {
+            print!("{}", o.stdout);
+            eprint!("{}", o.stderr);
+            ExitCode::from(o.exit)
+        }
+        Err(e) => {
+            eprintln!("tonus: {e}");
+            ExitCode::from(2)
+        }
+    }
+}

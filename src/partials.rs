@@ -129,7 +129,12 @@ pub fn analyse_with(
     let sr = rec.sample_rate_hz;
     let tap = tap::find_tap(&rec.samples, sr);
     let span = &rec.samples[tap.onset_sample..tap.end_sample];
-    let spec = spectrum::compute(span, sr, planner);
+    // Background for the noise floor: everything before the tap, less a
+    // guard of 5 ms.
+    let guard = (0.005 * sr) as usize;
+    let background = (tap.onset_found && tap.onset_sample > guard + spectrum::MIN_NOISE_SAMPLES)
+        .then(|| &rec.samples[..tap.onset_sample - guard]);
+    let spec = spectrum::compute(span, background, sr, planner);
     let mut warnings = Vec::new();
     if rec.clipped_fraction > 0.0 {
         warnings.push(Warning::Clipping {

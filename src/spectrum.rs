@@ -19,6 +19,7 @@
 //!   the window.
 
 use realfft::RealFftPlanner;
+use serde::Serialize;
 
 /// Zero padding: FFT length at least this many times the span.
 pub const ZERO_PAD_FACTOR: usize = 4;
@@ -51,6 +52,8 @@ pub struct Spectrum {
     pub span_len: usize,
     /// FFT length.
     pub fft_len: usize,
+    /// How the floor was estimated.
+    pub floor_source: FloorSource,
 }
 
 impl Spectrum {
@@ -109,7 +112,12 @@ pub fn fast_size(n: usize) -> usize {
 ///
 /// # Panics
 /// Never for a non-empty span; an empty span gives a one-bin spectrum.
-pub fn compute(span: &[f64], sample_rate_hz: f64, planner: &mut RealFftPlanner<f64>) -> Spectrum {
+pub fn compute(
+    span: &[f64],
+    noise: Option<&[f64]>,
+    sample_rate_hz: f64,
+    planner: &mut RealFftPlanner<f64>,
+) -> Spectrum {
     let n = span.len().max(1);
     let w = window(n, sample_rate_hz);
     let fft_len = fast_size(ZERO_PAD_FACTOR * n).max(16);
@@ -126,7 +134,17 @@ pub fn compute(span: &[f64], sample_rate_hz: f64, planner: &mut RealFftPlanner<f
     let window_sum: f64 = w.iter().sum();
     let window_sq_sum: f64 = w.iter().map(|x| x * x).sum();
     let bin_hz = sample_rate_hz / fft_len as f64;
-    let floor_power = noise_floor(&power, bin_hz, ZERO_PAD_FACTOR);
+    let from_noise = noise.and_then(|seg| noise_density(seg, sample_rate_hz, planner));
+    let (floor_power, floor_source) = match from_noise {
+        Some((grid_hz, density)) => {
+            let floor = (0..power.len())
+                .map(|k| interpolate(&grid_hz, &density, k as f64 * bin_hz) * window_sq_sum)
+                .collect();
+            let seconds = noise.map(|s| s.len() as f64 / sample_rate_hz).unwrap_or(0.0);
+            (floor, FloorSource::Background { seconds })
+        }
+        None => (noise_floor(&power, bin_hz, ZERO_PAD_FACTOR), FloorSource::SpanQuantile),
+    };
     let norm = 4.0 / (window_sum * window_sum);
     let level_db = power
         .iter()
@@ -141,7 +159,90 @@ pub fn compute(span: &[f64], sample_rate_hz: f64, planner: &mut RealFftPlanner<f
         window_sq_sum,
         span_len: n,
         fft_len,
+        floor_source,
     }
+}
+
+/// Where the noise floor came from.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(tag = "source", rename_all = "snake_case")]
+pub enum FloorSource {
+    /// Measured on the background before the tap (Welch average).
+    Background {
+        /// Length of background used, s.
+        seconds: f64,
+    },
+    /// Estimated from the tap spectrum itself (lower quartile), which
+    /// overstates the noise where the skirts of strong partials fill the
+    /// window.
+    SpanQuantile,
+}
+
+/// Shortest background segment used for the noise floor, samples.
+pub const MIN_NOISE_SAMPLES: usize = 512;
+
+/// Noise variance density per sample, as a function of frequency, from a
+/// stretch of background: Welch's averaged periodogram (P. D. Welch, "The
+/// use of fast Fourier transform for the estimation of power spectra",
+/// IEEE Trans. Audio Electroacoust. 15(2), 1967) with Hann frames at 50 %
+/// overlap, then a running median over ±1/6 octave so that steady lines
+/// (hum) in the background do not raise the floor. An average of K
+/// periodograms is Gamma-distributed with 2K degrees of freedom; its median
+/// over its mean is (1 − 1/(9K))³ by the Wilson–Hilferty approximation
+/// (E. B. Wilson and M. M. Hilferty, PNAS 17, 1931), which corrects the
+/// median to a mean. Returns (frequency grid Hz, variance per sample).
+pub fn noise_density(seg: &[f64], sample_rate_hz: f64, planner: &mut RealFftPlanner<f64>) -> Option<(Vec<f64>, Vec<f64>)> {
+    if seg.len() < MIN_NOISE_SAMPLES {
+        return None;
+    }
+    let mut frame = 256usize;
+    while frame * 2 <= 4096 && frame * 2 * 2 <= seg.len() {
+        frame *= 2;
+    }
+    let hop = frame / 2;
+    let k_frames = (seg.len() - frame) / hop + 1;
+    let hann: Vec<f64> = (0..frame)
+        .map(|i| 0.5 - 0.5 * (2.0 * std::f64::consts::PI * i as f64 / frame as f64).cos())
+        .collect();
+    let wsq: f64 = hann.iter().map(|x| x * x).sum();
+    let fft = planner.plan_fft_forward(frame);
+    let mut input = fft.make_input_vec();
+    let mut output = fft.make_output_vec();
+    let mut acc = vec![0.0; output.len()];
+    for j in 0..k_frames {
+        for (i, v) in input.iter_mut().enumerate() {
+            *v = seg[j * hop + i] * hann[i];
+        }
+        // Buffers come from the planner, so processing cannot fail.
+        fft.process(&mut input, &mut output)
+            .expect("buffers sized by the planner");
+        for (a, c) in acc.iter_mut().zip(&output) {
+            *a += c.norm_sqr();
+        }
+    }
+    // Half-overlapped Hann frames are not independent; about 1.9 frames'
+    // worth of overlap counts as one, hence the effective K.
+    let k_eff = (k_frames as f64 / 1.9).max(1.0);
+    let bin_hz = sample_rate_hz / frame as f64;
+    let density: Vec<f64> = acc.iter().map(|a| a / k_frames as f64 / wsq).collect();
+    let median = running_quantile(&density, bin_hz, 1, 0.5, 4);
+    let ratio = (1.0 - 1.0 / (9.0 * k_eff)).powi(3);
+    let grid: Vec<f64> = (0..density.len()).map(|k| k as f64 * bin_hz).collect();
+    Some((grid, median.iter().map(|m| (m / ratio).max(1e-300)).collect()))
+}
+
+/// Linear interpolation on an increasing grid, clamped at the ends.
+fn interpolate(grid: &[f64], values: &[f64], x: f64) -> f64 {
+    let k = grid.partition_point(|&g| g < x);
+    if k == 0 {
+        return values[0];
+    }
+    if k >= grid.len() {
+        return values[values.len() - 1];
+    }
+    let (x0, x1) = (grid[k - 1], grid[k]);
+    let a = (x - x0) / (x1 - x0);
+    values[k - 1] * (1.0 - a) + values[k] * a
 }
 
 /// Robust noise floor: running lower quartile over ±1/6 octave, evaluated at
@@ -149,12 +250,21 @@ pub fn compute(span: &[f64], sample_rate_hz: f64, planner: &mut RealFftPlanner<f
 /// `stride`-th bin enters the quantile (zero padding makes neighbours
 /// correlated, so the others add cost, not information).
 pub fn noise_floor(power: &[f64], bin_hz: f64, stride: usize) -> Vec<f64> {
+    running_quantile(power, bin_hz, stride, 0.25, 20 * stride)
+        .into_iter()
+        .map(|q| q / FLOOR_QUANTILE_TO_MEAN)
+        .collect()
+}
+
+/// The `q`-quantile of `power` over ±1/6 octave (at least `min_half_bins`
+/// either side), at 24 points per octave, interpolated in log between.
+pub fn running_quantile(power: &[f64], bin_hz: f64, stride: usize, q: f64, min_half_bins: usize) -> Vec<f64> {
     let nb = power.len();
     let stride = stride.max(1);
     let mut centres: Vec<usize> = Vec::new();
-    // At low frequency the window is at least 20 resolution bins (80 padded
-    // bins) either side, so that it reaches past the peaks' own skirts.
-    let min_half_bins = (20 * stride).max((10.0 / bin_hz).ceil() as usize);
+    // At low frequency the window keeps a minimum width in bins, so that it
+    // reaches past the peaks' own skirts.
+    let min_half_bins = min_half_bins.max((10.0 / bin_hz).ceil() as usize);
     let mut f = bin_hz.max(1.0);
     let top = bin_hz * (nb - 1) as f64;
     while f < top {
@@ -181,9 +291,9 @@ pub fn noise_floor(power: &[f64], bin_hz: f64, stride: usize) -> Vec<f64> {
             values.push((c, power[c.min(nb - 1)]));
             continue;
         }
-        let q = scratch.len() / 4;
-        let (_, m, _) = scratch.select_nth_unstable_by(q, f64::total_cmp);
-        values.push((c, *m / FLOOR_QUANTILE_TO_MEAN));
+        let idx = ((scratch.len() as f64 * q) as usize).min(scratch.len() - 1);
+        let (_, m, _) = scratch.select_nth_unstable_by(idx, f64::total_cmp);
+        values.push((c, *m));
     }
     let mut floor = vec![0.0; nb];
     let mut seg = 0;
@@ -225,7 +335,7 @@ mod tests {
             .map(|i| 0.5 * (2.0 * std::f64::consts::PI * 1000.0 * i as f64 / sr).sin())
             .collect();
         let mut planner = RealFftPlanner::new();
-        let s = compute(&x, sr, &mut planner);
+        let s = compute(&x, None, sr, &mut planner);
         let k = s.bin_of(1000.0);
         let peak = (k - 3..=k + 3).map(|j| s.level_db[j]).fold(f64::MIN, f64::max);
         // 20·log10(0.5) = −6.02 dB; 0.05 dB covers the grid offset.
@@ -244,12 +354,18 @@ mod tests {
             .collect();
         let w = window(x.len(), 48000.0);
         let mut planner = RealFftPlanner::new();
-        let s = compute(&x, 48000.0, &mut planner);
+        let s = compute(&x, None, 48000.0, &mut planner);
         let expect = s.window_sq_sum / 12.0;
         let mid = s.floor_power[s.power.len() / 2];
         // The median of ~thousands of bins is good to a few percent; 10 %
         // allows for the correlation between padded bins.
         assert!((mid / expect - 1.0).abs() < 0.1, "{} vs {}", mid, expect);
         assert_eq!(w.len(), x.len());
+        // The same noise as background: the Welch floor must agree too.
+        let s2 = compute(&x[..16384], Some(&x[16384..]), 48000.0, &mut planner);
+        let expect2 = s2.window_sq_sum / 12.0;
+        let mid2 = s2.floor_power[s2.power.len() / 2];
+        assert!((mid2 / expect2 - 1.0).abs() < 0.1, "{} vs {}", mid2, expect2);
+        assert!(matches!(s2.floor_source, FloorSource::Background { .. }));
     }
 }

@@ -1,0 +1,380 @@
+//! Command-line interface: clap definitions and their conversion into the
+//! library's validated option values. Nothing here computes a number.
+
+use crate::error::{Result, TonusError};
+use crate::fit::FitModel;
+use crate::membrane::Point;
+use crate::panel::{Panel, PanelSpec};
+use crate::partials::AnalysisConfig;
+use crate::pipeline::FitOptions;
+use crate::recording::ChannelChoice;
+use crate::synth::{self, ExtraTone, SynthConfig};
+use crate::units::{self, TensionUnit};
+use clap::{Args, Parser, Subcommand};
+use std::path::PathBuf;
+
+/// Membrane tension from the tap tone.
+#[derive(Debug, Parser)]
+#[command(name = "tonus", version, about, long_about = None)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// Subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// List the partials of a tap recording (frequency, level, SNR, decay).
+    Partials {
+        /// The recording (WAV).
+        recording: PathBuf,
+        #[command(flatten)]
+        input: InputArgs,
+        /// Print one JSON object instead of the table.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Fit the tension of a membrane to a tap recording.
+    Fit {
+        /// The recording (WAV).
+        recording: PathBuf,
+        #[command(flatten)]
+        panel: PanelArgs,
+        #[command(flatten)]
+        input: InputArgs,
+        /// Also fit the rectangle's effective height (width as given).
+        #[arg(long)]
+        free_aspect: bool,
+        /// Unit for the printed tension: N/m, N/cm, kN/m, lbf/in.
+        #[arg(long, default_value = "N/m")]
+        tension_unit: String,
+        /// Print one JSON object instead of the table.
+        #[arg(long)]
+        json: bool,
+        /// Write report, JSON, CSV and spectrum PNG into this folder.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// With --out, skip the PNG.
+        #[arg(long)]
+        no_picture: bool,
+    },
+    /// Predicted mode table for a tension, or the tension for a fundamental.
+    Modes {
+        #[command(flatten)]
+        panel: PanelArgs,
+        /// Tension, e.g. 2500N/m or 25N/cm.
+        #[arg(long, conflicts_with = "fundamental")]
+        tension: Option<String>,
+        /// Target fundamental, e.g. 180Hz: prints the tension that gives it.
+        #[arg(long)]
+        fundamental: Option<String>,
+        /// Number of lines to list [default: 12].
+        #[arg(long, default_value_t = 12)]
+        count: usize,
+        /// Unit for tensions: N/m, N/cm, kN/m, lbf/in.
+        #[arg(long, default_value = "N/m")]
+        tension_unit: String,
+        /// Print JSON.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Make a tap recording by modal synthesis.
+    Synth {
+        #[command(flatten)]
+        panel: PanelArgs,
+        /// Tension, e.g. 2500N/m.
+        #[arg(long)]
+        tension: String,
+        /// Output WAV file.
+        #[arg(short = 'o', long = "output")]
+        output: PathBuf,
+        /// Signal-to-noise ratio in dB [default: 40].
+        #[arg(long, default_value_t = synth::DEFAULT_SNR_DB)]
+        snr: f64,
+        /// T60 of the fundamental, e.g. 0.8s [default: 0.8s].
+        #[arg(long)]
+        t60: Option<String>,
+        /// Tap pulse duration, e.g. 0.5ms [default: 0.5ms].
+        #[arg(long)]
+        tap_duration: Option<String>,
+        /// Recording length, e.g. 1.5s [default: 1.5s].
+        #[arg(long)]
+        length: Option<String>,
+        /// Silence before the first tap, e.g. 100ms [default: 100ms].
+        #[arg(long)]
+        pre_roll: Option<String>,
+        /// Sample rate in Hz [default: 48000].
+        #[arg(long, default_value_t = synth::DEFAULT_SAMPLE_RATE_HZ)]
+        rate: u32,
+        /// Sample format: 16, 24 or 32f [default: 16].
+        #[arg(long, default_value = "16")]
+        bits: String,
+        /// Mains hum: 50Hz or 60Hz.
+        #[arg(long)]
+        hum: Option<String>,
+        /// Hum level in dB relative to the tap [default: -20].
+        #[arg(long, default_value_t = -20.0, allow_hyphen_values = true)]
+        hum_level: f64,
+        /// Extra tone FREQ:LEVEL[:T60], e.g. 333Hz:-20:0.3s (level in dB re the strongest mode); repeatable.
+        #[arg(long = "extra-tone")]
+        extra_tone: Vec<String>,
+        /// Number of taps [default: 1].
+        #[arg(long, default_value_t = 1)]
+        taps: usize,
+        /// Time between taps, e.g. 0.6s [default: 0.6s].
+        #[arg(long)]
+        tap_interval: Option<String>,
+        /// Gain in dB after scaling to -3 dBFS (positive values clip) [default: 0].
+        #[arg(long, default_value_t = 0.0, allow_hyphen_values = true)]
+        gain: f64,
+        /// Noise seed [default: 1].
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+    },
+    /// Fit every recording in the demo folder and write the reports.
+    Demo {
+        /// Folder of recordings, each with a NAME.panel.toml beside it.
+        #[arg(long, default_value = "demo-recordings")]
+        recordings: PathBuf,
+        /// Folder for the reports.
+        #[arg(long, default_value = "reports")]
+        out: PathBuf,
+    },
+}
+
+/// Geometry and material flags shared by fit, modes and synth.
+#[derive(Debug, Args, Clone, Default)]
+pub struct PanelArgs {
+    /// Panel file (TOML) with the same keys as these flags.
+    #[arg(long)]
+    pub panel: Option<PathBuf>,
+    /// rect or circle.
+    #[arg(long)]
+    pub shape: Option<String>,
+    /// Rectangle width (x), e.g. 400mm.
+    #[arg(long)]
+    pub width: Option<String>,
+    /// Rectangle height (y), e.g. 300mm.
+    #[arg(long)]
+    pub height: Option<String>,
+    /// Circle diameter, e.g. 14in.
+    #[arg(long)]
+    pub diameter: Option<String>,
+    /// Circle radius, e.g. 178mm.
+    #[arg(long)]
+    pub radius: Option<String>,
+    /// Areal density, e.g. 0.26kg/m2 or 260g/m2.
+    #[arg(long)]
+    pub areal_density: Option<String>,
+    /// Film thickness (with --density), e.g. 0.19mm.
+    #[arg(long)]
+    pub thickness: Option<String>,
+    /// Film density (with --thickness), e.g. 1390kg/m3.
+    #[arg(long)]
+    pub density: Option<String>,
+    /// Tap point: x,y fractions (rectangle) or r[,deg] (circle).
+    #[arg(long)]
+    pub tap_at: Option<String>,
+    /// Pickup (microphone) point, same form as --tap-at.
+    #[arg(long)]
+    pub pickup_at: Option<String>,
+}
+
+/// Recording input flags.
+#[derive(Debug, Args, Clone, Default)]
+pub struct InputArgs {
+    /// Channel to analyse, counted from 1 (default: mix all channels).
+    #[arg(long)]
+    pub channel: Option<usize>,
+    /// Minimum SNR of a partial in dB [default: 10].
+    #[arg(long)]
+    pub min_snr: Option<f64>,
+    /// Highest frequency searched, e.g. 5kHz [default: 95 % of Nyquist].
+    #[arg(long)]
+    pub max_frequency: Option<String>,
+}
+
+impl PanelArgs {
+    /// The panel described by the flags over the panel file.
+    ///
+    /// # Errors
+    /// Unreadable panel file, malformed or missing values.
+    pub fn to_panel(&self) -> Result<Panel> {
+        let flags = PanelSpec {
+            shape: self.shape.clone(),
+            width: self.width.clone(),
+            height: self.height.clone(),
+            diameter: self.diameter.clone(),
+            radius: self.radius.clone(),
+            areal_density: self.areal_density.clone(),
+            thickness: self.thickness.clone(),
+            density: self.density.clone(),
+            tap_at: self.tap_at.clone(),
+            pickup_at: self.pickup_at.clone(),
+        };
+        let base = match &self.panel {
+            Some(p) => PanelSpec::from_file(p)?,
+            None => PanelSpec::default(),
+        };
+        Panel::from_spec(&flags.over(base))
+    }
+}
+
+impl InputArgs {
+    /// The channel choice.
+    ///
+    /// # Errors
+    /// Channel 0.
+    pub fn channel(&self) -> Result<ChannelChoice> {
+        match self.channel {
+            None => Ok(ChannelChoice::MixDown),
+            Some(0) => Err(TonusError::OutOfRange {
+                key: "--channel".into(),
+                value: "0".into(),
+                why: "channels are counted from 1".into(),
+            }),
+            Some(n) => Ok(ChannelChoice::Index(n - 1)),
+        }
+    }
+
+    /// The partial finder configuration.
+    ///
+    /// # Errors
+    /// Malformed frequency or SNR.
+    pub fn analysis(&self) -> Result<AnalysisConfig> {
+        let mut cfg = AnalysisConfig::default();
+        if let Some(s) = self.min_snr {
+            if !(0.0..=100.0).contains(&s) {
+                return Err(TonusError::OutOfRange {
+                    key: "--min-snr".into(),
+                    value: s.to_string(),
+                    why: "choose 0 to 100 dB".into(),
+                });
+            }
+            cfg.min_snr_db = s;
+        }
+        if let Some(f) = &self.max_frequency {
+            cfg.max_frequency_hz = Some(units::parse_frequency("--max-frequency", f)?.0);
+        }
+        Ok(cfg)
+    }
+}
+
+/// Validated options of `fit`.
+pub fn fit_options(free_aspect: bool, input: &InputArgs) -> Result<FitOptions> {
+    Ok(FitOptions {
+        model: if free_aspect {
+            FitModel::FreeAspect
+        } else {
+            FitModel::Isotropic
+        },
+        analysis: input.analysis()?,
+    })
+}
+
+/// Parses a tension unit flag.
+pub fn tension_unit(text: &str) -> Result<TensionUnit> {
+    TensionUnit::parse("--tension-unit", text)
+}
+
+/// Validated options of `synth`, from its flags.
+#[allow(clippy::too_many_arguments)]
+pub fn synth_config(
+    panel: &PanelArgs,
+    tension: &str,
+    snr: f64,
+    t60: Option<&str>,
+    tap_duration: Option<&str>,
+    length: Option<&str>,
+    pre_roll: Option<&str>,
+    rate: u32,
+    hum: Option<&str>,
+    hum_level: f64,
+    extra: &[String],
+    taps: usize,
+    tap_interval: Option<&str>,
+    gain: f64,
+    seed: u64,
+) -> Result<SynthConfig> {
+    let p = panel.to_panel()?;
+    let density = p.areal_density.ok_or_else(|| {
+        TonusError::Panel("synth needs --areal-density (or --thickness with --density)".into())
+    })?;
+    let tension = units::parse_tension("--tension", tension)?;
+    let tap = p.tap.unwrap_or(match p.shape {
+        crate::membrane::Shape::Rectangle { .. } => Point { u: 0.31, v: Some(0.27) },
+        crate::membrane::Shape::Circle { .. } => Point { u: 0.6, v: Some(0.0) },
+    });
+    let mut cfg = SynthConfig::new(p.shape, density, tension, tap);
+    cfg.pickup = p.pickup;
+    cfg.snr_db = snr;
+    if !(-20.0..=140.0).contains(&snr) {
+        return Err(TonusError::OutOfRange {
+            key: "--snr".into(),
+            value: snr.to_string(),
+            why: "choose -20 to 140 dB".into(),
+        });
+    }
+    if let Some(t) = t60 {
+        cfg.t60_s = units::parse_duration_s("--t60", t)?;
+    }
+    if let Some(t) = tap_duration {
+        cfg.tap_duration_s = units::parse_duration_s("--tap-duration", t)?;
+    }
+    if let Some(t) = length {
+        cfg.duration_s = units::parse_duration_s("--length", t)?;
+    }
+    if let Some(t) = pre_roll {
+        cfg.pre_roll_s = units::parse_duration_s("--pre-roll", t)?;
+    }
+    if let Some(t) = tap_interval {
+        cfg.tap_interval_s = units::parse_duration_s("--tap-interval", t)?;
+    }
+    cfg.sample_rate_hz = rate;
+    if let Some(h) = hum {
+        cfg.hum = Some((units::parse_frequency("--hum", h)?.0, hum_level));
+    }
+    for e in extra {
+        let parts: Vec<&str> = e.split(':').collect();
+        let bad = || TonusError::BadQuantity {
+            key: "--extra-tone".into(),
+            value: e.clone(),
+            expected: "FREQ:LEVEL_DB[:T60]".into(),
+            example: "333Hz:-20:0.3s".into(),
+        };
+        if parts.len() < 2 || parts.len() > 3 {
+            return Err(bad());
+        }
+        let f = units::parse_frequency("--extra-tone", parts[0])?.0;
+        let level: f64 = parts[1].trim_end_matches("dB").parse().map_err(|_| bad())?;
+        let t60 = match parts.get(2) {
+            Some(t) => units::parse_duration_s("--extra-tone", t)?,
+            None => f64::INFINITY,
+        };
+        cfg.extra_tones.push(ExtraTone {
+            frequency_hz: f,
+            level_db: level,
+            t60_s: t60,
+        });
+    }
+    cfg.taps = taps.max(1);
+    cfg.gain_db = gain;
+    cfg.seed = seed;
+    Ok(cfg)
+}
+
+/// Parses the synth sample format flag into (bits, float).
+pub fn sample_format(text: &str) -> Result<(u16, bool)> {
+    match text {
+        "16" => Ok((16, false)),
+        "24" => Ok((24, false)),
+        "32f" | "f32" | "float" => Ok((32, true)),
+        _ => Err(TonusError::BadQuantity {
+            key: "--bits".into(),
+            value: text.into(),
+            expected: "16, 24 or 32f".into(),
+            example: "24".into(),
+        }),
+    }
+}

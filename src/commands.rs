@@ -1,0 +1,294 @@
+//! One library function per subcommand: each takes validated values and
+//! returns what to print and the exit status. `main` only prints.
+//!
+//! Exit status: 0 — done, fit sound or fair; 1 — fit doubtful or unfit
+//! (or, for `demo`, some recording not fitted); 2 — an error (bad input,
+//! bad flags), printed on one line.
+
+use crate::error::{Result, TonusError};
+use crate::membrane::{self, Shape};
+use crate::panel::{Panel, PanelSpec};
+use crate::partials::{self, AnalysisConfig};
+use crate::pipeline::{self, FitOptions, Measurement};
+use crate::quality::Grade;
+use crate::recording::{self, ChannelChoice};
+use crate::report;
+use crate::synth::{self, SynthConfig};
+use crate::units::{self, KgPerM2, TensionUnit};
+use serde_json::json;
+use std::path::{Path, PathBuf};
+
+/// What a command prints and how it exits.
+#[derive(Debug)]
+pub struct Outcome {
+    /// Text for standard output.
+    pub stdout: String,
+    /// Lines for standard error (warnings).
+    pub stderr: String,
+    /// Exit status.
+    pub exit: u8,
+}
+
+/// Exit status for a measurement's grade.
+pub fn exit_for(grade: Grade) -> u8 {
+    match grade {
+        Grade::Sound | Grade::Fair => 0,
+        Grade::Doubtful | Grade::Unfit => 1,
+    }
+}
+
+/// `tonus partials`.
+///
+/// # Errors
+/// Unreadable or unusable recording.
+pub fn partials(path: &Path, channel: ChannelChoice, cfg: &AnalysisConfig, as_json: bool) -> Result<Outcome> {
+    let rec = recording::read_wav(path, channel)?;
+    let a = partials::analyse(&rec, cfg)?;
+    let stdout = if as_json {
+        format!("{}\n", serde_json::to_string_pretty(&report::json::partials_record(path, &a)).unwrap_or_default())
+    } else {
+        report::text::partials_table(path, &a)
+    };
+    Ok(Outcome {
+        stdout,
+        stderr: String::new(),
+        exit: 0,
+    })
+}
+
+/// `tonus fit`.
+///
+/// # Errors
+/// Unreadable recording, impossible model request, unwritable output folder.
+pub fn fit(
+    path: &Path,
+    channel: ChannelChoice,
+    panel: &Panel,
+    opts: &FitOptions,
+    unit: TensionUnit,
+    as_json: bool,
+    out: Option<&Path>,
+    picture: bool,
+) -> Result<Outcome> {
+    let rec = recording::read_wav(path, channel)?;
+    let m = pipeline::measure(&rec, panel, opts)?;
+    let mut stdout = if as_json {
+        format!("{}\n", serde_json::to_string_pretty(&report::json::fit_record(path, &m, unit)).unwrap_or_default())
+    } else {
+        report::text::fit_table(path, &m, unit)
+    };
+    if let Some(dir) = out {
+        let written = report::write_fit_outputs(dir, path, &m, unit, picture)?;
+        if !as_json {
+            stdout.push_str(&format!(
+                "written: {}\n",
+                written.iter().map(|p| p.display().to_string()).collect::<Vec<_>>().join(", ")
+            ));
+        }
+    }
+    Ok(Outcome {
+        stdout,
+        stderr: String::new(),
+        exit: exit_for(m.quality.grade),
+    })
+}
+
+/// `tonus modes`: the line table for a tension, or the tension (or wave
+/// speed) that puts the fundamental at a target frequency.
+///
+/// # Errors
+/// A tension without areal density.
+pub fn modes(
+    panel: &Panel,
+    tension: Option<&str>,
+    fundamental: Option<&str>,
+    count: usize,
+    unit: TensionUnit,
+    as_json: bool,
+) -> Result<Outcome> {
+    let g1 = panel.shape.fundamental_factor();
+    let density = panel.areal_density;
+    let (c, tension_n_per_m) = match (tension, fundamental) {
+        (Some(t), None) => {
+            let t = units::parse_tension("--tension", t)?;
+            let s = density.ok_or_else(|| {
+                TonusError::Panel("--tension needs --areal-density to give frequencies".into())
+            })?;
+            (membrane::wave_speed(t, s).0, Some(t.0))
+        }
+        (None, Some(f)) => {
+            let f = units::parse_frequency("--fundamental", f)?;
+            let c = f.0 / g1;
+            (c, density.map(|s: KgPerM2| s.0 * c * c))
+        }
+        _ => {
+            return Err(TonusError::Panel(
+                "give --tension (for the mode table) or --fundamental (for the tension that gives it)".into(),
+            ))
+        }
+    };
+    let count = count.clamp(1, 200);
+    // Enough lines: grow the factor range until `count` lines are in.
+    let mut g_max = g1 * 3.0;
+    let mut lines = panel.shape.lines(g_max, panel.tap, panel.pickup);
+    while lines.len() < count && g_max < g1 * 200.0 {
+        g_max *= 1.5;
+        lines = panel.shape.lines(g_max, panel.tap, panel.pickup);
+    }
+    lines.truncate(count);
+    let k = unit.newtons_per_meter();
+    let stdout = if as_json {
+        let v = json!({
+            "schema": "tonus.modes/1",
+            "panel": panel.describe(),
+            "wave_speed": {"value": c, "unit": "m/s"},
+            "tension": tension_n_per_m.map(|t| json!({"value": t / k, "unit": unit.symbol()})),
+            "lines": lines.iter().map(|l| json!({
+                "labels": l.label_text(),
+                "m": l.labels[0].0, "n": l.labels[0].1,
+                "frequency_hz": c * l.factor,
+                "ratio_to_fundamental": l.factor / g1,
+                "degeneracy": l.degeneracy,
+                "coupling": l.coupling,
+            })).collect::<Vec<_>>(),
+            "caution": report::json::CAUTION,
+        });
+        format!("{}\n", serde_json::to_string_pretty(&v).unwrap_or_default())
+    } else {
+        let mut s = format!("{} — wave speed {:.3} m/s", panel.describe(), c);
+        match tension_n_per_m {
+            Some(t) => s.push_str(&format!(", tension {} {}\n", units::sig(t / k, 5), unit.symbol())),
+            None => s.push_str(" (give --areal-density for the tension)\n"),
+        }
+        s.push_str(&format!("{:<16} {:>11} {:>8} {:>9}\n", "mode", "freq [Hz]", "ratio", "coupling"));
+        for l in &lines {
+            s.push_str(&format!(
+                "{:<16} {:>11.2} {:>8.4} {:>9.2}\n",
+                l.label_text(),
+                c * l.factor,
+                l.factor / g1,
+                l.coupling
+            ));
+        }
+        if fundamental.is_some() {
+            s.push_str(&format!("caution: {}\n", report::json::CAUTION));
+        }
+        s
+    };
+    Ok(Outcome {
+        stdout,
+        stderr: String::new(),
+        exit: 0,
+    })
+}
+
+/// `tonus synth`.
+///
+/// # Errors
+/// Impossible settings or an unwritable output.
+pub fn synth(cfg: &SynthConfig, output: &Path, bits: u16, float: bool) -> Result<Outcome> {
+    let x = synth::synthesise(cfg)?;
+    recording::write_wav(output, &x, cfg.sample_rate_hz, bits, float)?;
+    let c = membrane::wave_speed(cfg.tension, cfg.areal_density).0;
+    Ok(Outcome {
+        stdout: format!(
+            "{}: {:.2} s at {} Hz, fundamental {:.2} Hz, SNR {} dB\n",
+            output.display(),
+            cfg.duration_s,
+            cfg.sample_rate_hz,
+            c * cfg.shape.fundamental_factor(),
+            cfg.snr_db
+        ),
+        stderr: String::new(),
+        exit: 0,
+    })
+}
+
+/// `tonus demo`: fits every WAV in `dir` with its `NAME.panel.toml` and
+/// writes the reports, a summary CSV and an index into `out`. A file that
+/// fails becomes a row with its error; the others are still written.
+///
+/// # Errors
+/// Unreadable recordings folder or unwritable output folder.
+pub fn demo(dir: &Path, out: &Path) -> Result<Outcome> {
+    let mut wavs: Vec<PathBuf> = std::fs::read_dir(dir)
+        .map_err(|e| TonusError::Io {
+            path: dir.to_path_buf(),
+            reason: format!("{e}; run tonus demo from the project folder or pass --recordings"),
+        })?
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.extension().is_some_and(|x| x.eq_ignore_ascii_case("wav")))
+        .collect();
+    wavs.sort();
+    if wavs.is_empty() {
+        return Err(TonusError::NoFit(format!("{} holds no .wav files", dir.display())));
+    }
+    let unit = TensionUnit::NewtonPerMeter;
+    let mut results: Vec<(String, Option<Measurement>, Option<String>)> = Vec::new();
+    let mut stdout = String::new();
+    let mut stderr = String::new();
+    for wav in &wavs {
+        let name = wav.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        let panel_file = wav.with_extension("panel.toml");
+        let outcome = (|| -> Result<Measurement> {
+            let spec = PanelSpec::from_file(&panel_file)?;
+            let panel = Panel::from_spec(&spec)?;
+            let rec = recording::read_wav(wav, ChannelChoice::MixDown)?;
+            let m = pipeline::measure(&rec, &panel, &FitOptions::default())?;
+            report::write_fit_outputs(out, wav, &m, unit, true)?;
+            Ok(m)
+        })();
+        match outcome {
+            Ok(m) => {
+                stdout.push_str(&format!(
+                    "{:<28} {:>24}  {}\n",
+                    name,
+                    m.tension
+                        .map(|t| report::text::pm(t.value, t.standard_uncertainty, "N/m"))
+                        .unwrap_or_else(|| "–".into()),
+                    m.quality.grade.name()
+                ));
+                results.push((name, Some(m), None));
+            }
+            Err(e) => {
+                stderr.push_str(&format!("error: {e}\n"));
+                stdout.push_str(&format!("{name:<28} {:>24}  error\n", "–"));
+                results.push((name, None, Some(e.to_string())));
+            }
+        }
+    }
+    let rows: Vec<(String, Option<&Measurement>, Option<String>)> =
+        results.iter().map(|(n, m, e)| (n.clone(), m.as_ref(), e.clone())).collect();
+    let table = report::csv::summary_csv(&rows).map_err(|e| TonusError::Write {
+        path: out.join("summary.csv"),
+        reason: e.to_string(),
+    })?;
+    report::write_atomic(&out.join("summary.csv"), table.as_bytes())?;
+    let mut index = String::from("# Demo reports\n\nWritten by `tonus demo` from the recordings in `demo-recordings/`.\n\n| recording | tension | quality | report |\n|---|---|---|---|\n");
+    for (name, m, e) in &results {
+        let stem = Path::new(name).file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default();
+        match m {
+            Some(m) => index.push_str(&format!(
+                "| {name} | {} | {} | [{stem}.report.md]({stem}.report.md) |\n",
+                m.tension
+                    .map(|t| report::text::pm(t.value, t.standard_uncertainty, "N/m"))
+                    .unwrap_or_else(|| "–".into()),
+                m.quality.grade.name()
+            )),
+            None => index.push_str(&format!("| {name} | – | error: {} | – |\n", e.clone().unwrap_or_default())),
+        }
+    }
+    index.push_str(&format!("\n{}\n", report::json::CAUTION));
+    report::write_atomic(&out.join("README.md"), index.as_bytes())?;
+    let failed = results.iter().any(|(_, m, _)| m.as_ref().is_none_or(|m| exit_for(m.quality.grade) != 0));
+    Ok(Outcome {
+        stdout,
+        stderr,
+        exit: if failed { 1 } else { 0 },
+    })
+}
+
+/// Shape check used by `fit --free-aspect` callers.
+pub fn is_rectangle(p: &Panel) -> bool {
+    matches!(p.shape, Shape::Rectangle { .. })
+}

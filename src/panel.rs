@@ -1,0 +1,301 @@
+//! The membrane being measured: outline, areal density, tap and pickup
+//! points — from command-line values or a panel file (TOML).
+//!
+//! A panel file holds the same keys as the command-line flags, all values
+//! as strings with units:
+//!
+//! ```toml
+//! shape = "rect"            # or "circle"
+//! width = "400mm"
+//! height = "300mm"
+//! areal-density = "0.26kg/m2"   # or thickness + density
+//! tap-at = "0.31,0.27"          # fractions of width, height
+//! pickup-at = "0.5,0.5"
+//! ```
+//! Flags given on the command line override the file.
+
+use crate::error::{Result, TonusError};
+use crate::membrane::{Point, Shape};
+use crate::units::{self, KgPerM2, Meters};
+use serde::Serialize;
+use std::path::Path;
+
+/// Panel values as text, before parsing (from flags or a file).
+#[derive(Debug, Clone, Default)]
+pub struct PanelSpec {
+    /// "rect"/"rectangle" or "circle".
+    pub shape: Option<String>,
+    /// Width (x), rectangle.
+    pub width: Option<String>,
+    /// Height (y), rectangle.
+    pub height: Option<String>,
+    /// Diameter, circle.
+    pub diameter: Option<String>,
+    /// Radius, circle.
+    pub radius: Option<String>,
+    /// Areal density.
+    pub areal_density: Option<String>,
+    /// Film thickness (with density, instead of areal density).
+    pub thickness: Option<String>,
+    /// Material density (with thickness).
+    pub density: Option<String>,
+    /// Tap point.
+    pub tap_at: Option<String>,
+    /// Pickup point.
+    pub pickup_at: Option<String>,
+}
+
+impl PanelSpec {
+    /// Values of `self` where set, else of `base`.
+    pub fn over(self, base: PanelSpec) -> PanelSpec {
+        PanelSpec {
+            shape: self.shape.or(base.shape),
+            width: self.width.or(base.width),
+            height: self.height.or(base.height),
+            diameter: self.diameter.or(base.diameter),
+            radius: self.radius.or(base.radius),
+            areal_density: self.areal_density.or(base.areal_density),
+            thickness: self.thickness.or(base.thickness),
+            density: self.density.or(base.density),
+            tap_at: self.tap_at.or(base.tap_at),
+            pickup_at: self.pickup_at.or(base.pickup_at),
+        }
+    }
+
+    /// Reads a panel file.
+    ///
+    /// # Errors
+    /// Unreadable file, invalid TOML, unknown key, a value that is not a string.
+    pub fn from_file(path: &Path) -> Result<PanelSpec> {
+        let text = std::fs::read_to_string(path).map_err(|e| TonusError::Io {
+            path: path.to_path_buf(),
+            reason: e.to_string(),
+        })?;
+        let table: toml::Table = text.parse().map_err(|e: toml::de::Error| TonusError::ConfigFile {
+            path: path.to_path_buf(),
+            reason: format!("not valid TOML: {}", e.message()),
+        })?;
+        let mut spec = PanelSpec::default();
+        for (key, value) in &table {
+            let text = match value {
+                toml::Value::String(s) => s.clone(),
+                other => {
+                    return Err(TonusError::ConfigFile {
+                        path: path.to_path_buf(),
+                        reason: format!("key '{key}' must be a string with its unit, e.g. \"400mm\"; found {other}"),
+                    })
+                }
+            };
+            let slot = match key.as_str() {
+                "shape" => &mut spec.shape,
+                "width" => &mut spec.width,
+                "height" => &mut spec.height,
+                "diameter" => &mut spec.diameter,
+                "radius" => &mut spec.radius,
+                "areal-density" | "areal_density" => &mut spec.areal_density,
+                "thickness" => &mut spec.thickness,
+                "density" => &mut spec.density,
+                "tap-at" | "tap_at" => &mut spec.tap_at,
+                "pickup-at" | "pickup_at" => &mut spec.pickup_at,
+                "name" | "note" => continue,
+                _ => {
+                    return Err(TonusError::ConfigFile {
+                        path: path.to_path_buf(),
+                        reason: format!(
+                            "unknown key '{key}'; known keys: shape, width, height, diameter, radius, areal-density, thickness, density, tap-at, pickup-at, name, note"
+                        ),
+                    })
+                }
+            };
+            *slot = Some(text);
+        }
+        Ok(spec)
+    }
+}
+
+/// A parsed, checked panel.
+#[derive(Debug, Clone, Serialize)]
+pub struct Panel {
+    /// Outline.
+    pub shape: Shape,
+    /// Areal density σ, if known.
+    pub areal_density: Option<KgPerM2>,
+    /// Tap point, if known.
+    pub tap: Option<Point>,
+    /// Pickup point, if known.
+    pub pickup: Option<Point>,
+}
+
+impl Panel {
+    /// Parses and checks a specification.
+    ///
+    /// # Errors
+    /// Missing or contradictory dimensions, malformed quantities, points
+    /// outside the membrane.
+    pub fn from_spec(spec: &PanelSpec) -> Result<Panel> {
+        let shape_text = spec.shape.clone().unwrap_or_else(|| {
+            if spec.diameter.is_some() || spec.radius.is_some() {
+                "circle".into()
+            } else {
+                "rect".into()
+            }
+        });
+        let shape = match shape_text.to_lowercase().as_str() {
+            "rect" | "rectangle" | "rectangular" => {
+                let w = spec.width.as_deref().ok_or_else(|| {
+                    TonusError::Panel("a rectangle needs --width (e.g. --width 400mm)".into())
+                })?;
+                let h = spec.height.as_deref().ok_or_else(|| {
+                    TonusError::Panel("a rectangle needs --height (e.g. --height 300mm)".into())
+                })?;
+                Shape::Rectangle {
+                    width: units::parse_length("--width", w)?,
+                    height: units::parse_length("--height", h)?,
+                }
+            }
+            "circle" | "round" | "circular" => {
+                let radius = match (spec.diameter.as_deref(), spec.radius.as_deref()) {
+                    (Some(d), None) => Meters(units::parse_length("--diameter", d)?.0 / 2.0),
+                    (None, Some(r)) => units::parse_length("--radius", r)?,
+                    (Some(_), Some(_)) => {
+                        return Err(TonusError::Panel("give --diameter or --radius, not both".into()))
+                    }
+                    (None, None) => {
+                        return Err(TonusError::Panel("a circle needs --diameter (e.g. --diameter 14in)".into()))
+                    }
+                };
+                Shape::Circle { radius }
+            }
+            other => {
+                return Err(TonusError::BadQuantity {
+                    key: "--shape".into(),
+                    value: other.into(),
+                    expected: "rect or circle".into(),
+                    example: "rect".into(),
+                })
+            }
+        };
+        let areal_density = match (
+            spec.areal_density.as_deref(),
+            spec.thickness.as_deref(),
+            spec.density.as_deref(),
+        ) {
+            (Some(a), None, None) => Some(units::parse_areal_density("--areal-density", a)?),
+            (None, Some(t), Some(d)) => {
+                let t = units::parse_length("--thickness", t)?;
+                let d = units::parse_density("--density", d)?;
+                Some(KgPerM2(t.0 * d.0))
+            }
+            (None, None, None) => None,
+            (Some(_), _, _) => {
+                return Err(TonusError::Panel(
+                    "give --areal-density or --thickness with --density, not both".into(),
+                ))
+            }
+            (None, Some(_), None) => return Err(TonusError::Panel("--thickness needs --density (e.g. --density 1390kg/m3)".into())),
+            (None, None, Some(_)) => return Err(TonusError::Panel("--density needs --thickness (e.g. --thickness 0.19mm)".into())),
+        };
+        let tap = spec.tap_at.as_deref().map(|t| parse_point("--tap-at", t, &shape)).transpose()?;
+        let pickup = spec
+            .pickup_at
+            .as_deref()
+            .map(|t| parse_point("--pickup-at", t, &shape))
+            .transpose()?;
+        Ok(Panel {
+            shape,
+            areal_density,
+            tap,
+            pickup,
+        })
+    }
+
+    /// A one-line description, e.g. "rectangle 400 × 300 mm".
+    pub fn describe(&self) -> String {
+        match self.shape {
+            Shape::Rectangle { width, height } => {
+                format!("rectangle {:.0} × {:.0} mm", width.0 * 1e3, height.0 * 1e3)
+            }
+            Shape::Circle { radius } => format!("circle ⌀ {:.0} mm", radius.0 * 2e3),
+        }
+    }
+}
+
+/// Parses "x,y" (rectangle, fractions of width and height) or "r" / "r,θ"
+/// (circle, fraction of radius and degrees).
+pub fn parse_point(key: &str, text: &str, shape: &Shape) -> Result<Point> {
+    let bad = |why: &str| TonusError::BadQuantity {
+        key: key.into(),
+        value: text.into(),
+        expected: why.into(),
+        example: match shape {
+            Shape::Rectangle { .. } => "0.31,0.27".into(),
+            Shape::Circle { .. } => "0.6,45".into(),
+        },
+    };
+    let parts: Vec<&str> = text.split(',').map(str::trim).collect();
+    let nums: Vec<f64> = parts
+        .iter()
+        .map(|p| p.parse::<f64>())
+        .collect::<std::result::Result<_, _>>()
+        .map_err(|_| bad("numbers separated by a comma"))?;
+    match shape {
+        Shape::Rectangle { .. } => {
+            if nums.len() != 2 || nums.iter().any(|v| !(0.0..=1.0).contains(v)) {
+                return Err(bad("two fractions of width and height, each 0..1"));
+            }
+            Ok(Point {
+                u: nums[0],
+                v: Some(nums[1]),
+            })
+        }
+        Shape::Circle { .. } => {
+            if nums.is_empty() || nums.len() > 2 || !(0.0..=1.0).contains(&nums[0]) {
+                return Err(bad("a fraction of the radius 0..1, optionally an angle in degrees"));
+            }
+            Ok(Point {
+                u: nums[0],
+                v: nums.get(1).copied(),
+            })
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn thickness_times_density_gives_areal_density() {
+        let spec = PanelSpec {
+            diameter: Some("14in".into()),
+            thickness: Some("0.19mm".into()),
+            density: Some("1390kg/m3".into()),
+            ..Default::default()
+        };
+        let p = Panel::from_spec(&spec).unwrap();
+        assert!((p.areal_density.unwrap().0 - 0.19e-3 * 1390.0).abs() < 1e-12);
+        assert!(matches!(p.shape, Shape::Circle { radius } if (radius.0 - 0.1778).abs() < 1e-12));
+    }
+
+    #[test]
+    fn missing_and_bad_values_name_the_flag() {
+        let spec = PanelSpec {
+            width: Some("400mm".into()),
+            ..Default::default()
+        };
+        assert!(Panel::from_spec(&spec).unwrap_err().to_string().contains("--height"));
+        let spec = PanelSpec {
+            width: Some("-400mm".into()),
+            height: Some("300mm".into()),
+            ..Default::default()
+        };
+        assert!(Panel::from_spec(&spec).unwrap_err().to_string().contains("--width"));
+        let spec = PanelSpec {
+            width: Some("400mm".into()),
+            height: Some("300mm".into()),
+            areal_density: Some("0kg/m2".into()),
+            ..Default::default()
+        };
+        assert!(Panel::from_spec(&spec).unwrap_err().to_string().contains("--areal-density"));
+    }
+}

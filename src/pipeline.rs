@@ -1,0 +1,269 @@
+//! One recording from samples to a fitted tension: partials → lines →
+//! matching → fit → quality. Takes values, returns a [`Measurement`].
+
+use crate::error::{Result, TonusError};
+use crate::fit::{self, Estimate, FitModel, FitResult, Observation};
+use crate::matching::{self, Matching, WEAK_COUPLING};
+use crate::membrane::{ModeLine, Shape};
+use crate::panel::Panel;
+use crate::partials::{self, AnalysisConfig, PartialAnalysis};
+use crate::quality::{self, Quality};
+use crate::recording::Recording;
+use crate::warning::Warning;
+use realfft::RealFftPlanner;
+use serde::Serialize;
+
+/// Options of a fit.
+#[derive(Debug, Clone)]
+pub struct FitOptions {
+    /// What to fit.
+    pub model: FitModel,
+    /// Partial finder settings.
+    pub analysis: AnalysisConfig,
+}
+
+impl Default for FitOptions {
+    fn default() -> Self {
+        FitOptions {
+            model: FitModel::Isotropic,
+            analysis: AnalysisConfig::default(),
+        }
+    }
+}
+
+/// One matched mode in the result.
+#[derive(Debug, Clone, Serialize)]
+pub struct ModeRow {
+    /// First label's m.
+    pub m: u32,
+    /// First label's n.
+    pub n: u32,
+    /// All labels of the line, e.g. "(1,2)/(2,1)".
+    pub labels: String,
+    /// Predicted frequency at the fitted wave speed, Hz.
+    pub predicted_hz: f64,
+    /// Measured frequency, Hz.
+    pub measured_hz: f64,
+    /// ln(measured/predicted) in cents.
+    pub residual_cents: f64,
+    /// Partial level, dB re full-scale sine.
+    pub level_db: f64,
+    /// Partial SNR, dB.
+    pub snr_db: f64,
+    /// Partial T60, s.
+    pub t60_s: Option<f64>,
+    /// Left out of the fit as an outlier.
+    pub outlier: bool,
+    /// Other labels that fit this partial about as well.
+    pub alternatives: Vec<String>,
+}
+
+/// A predicted line that should be visible but has no partial.
+#[derive(Debug, Clone, Serialize)]
+pub struct MissingMode {
+    /// Labels.
+    pub labels: String,
+    /// Predicted frequency, Hz.
+    pub predicted_hz: f64,
+    /// Expected coupling at tap and pickup, 0..1.
+    pub coupling: f64,
+}
+
+/// The full result for one recording.
+#[derive(Debug, Clone)]
+pub struct Measurement {
+    /// The panel as given.
+    pub panel: Panel,
+    /// Partials and spectrum.
+    pub analysis: PartialAnalysis,
+    /// Predicted lines used for matching (at unit wave speed: factor g).
+    pub lines: Vec<ModeLine>,
+    /// Matching outcome.
+    pub matching: Option<Matching>,
+    /// Fit outcome.
+    pub fit: Option<FitResult>,
+    /// Tension T = σ·c², N/m, when σ is known.
+    pub tension: Option<Estimate>,
+    /// T/σ = c², m²/s².
+    pub tension_over_density: Option<Estimate>,
+    /// Matched modes.
+    pub modes: Vec<ModeRow>,
+    /// Expected-but-missing lines within the matched band.
+    pub missing: Vec<MissingMode>,
+    /// Indices of partials not assigned to any mode.
+    pub unmatched: Vec<usize>,
+    /// Grade and reasons.
+    pub quality: Quality,
+    /// All warnings.
+    pub warnings: Vec<Warning>,
+    /// Recording duration, s.
+    pub duration_s: f64,
+}
+
+/// Analyses a recording and fits the panel's model to it.
+///
+/// # Errors
+/// Only for impossible requests (a free aspect ratio on a circle); a
+/// recording with nothing to fit gives a measurement graded unfit.
+pub fn measure(rec: &Recording, panel: &Panel, opts: &FitOptions) -> Result<Measurement> {
+    let mut planner = RealFftPlanner::new();
+    measure_with(rec, panel, opts, &mut planner)
+}
+
+/// As [`measure`], reusing an FFT planner.
+pub fn measure_with(
+    rec: &Recording,
+    panel: &Panel,
+    opts: &FitOptions,
+    planner: &mut RealFftPlanner<f64>,
+) -> Result<Measurement> {
+    if opts.model == FitModel::FreeAspect && !matches!(panel.shape, Shape::Rectangle { .. }) {
+        return Err(TonusError::Panel(
+            "--free-aspect needs a rectangle; a circle has no aspect ratio".into(),
+        ));
+    }
+    let analysis = partials::analyse_with(rec, &opts.analysis, planner)?;
+    let mut warnings = analysis.warnings.clone();
+    let parts = &analysis.partials;
+    let (f_lo, f_hi) = parts
+        .iter()
+        .fold((f64::INFINITY, 0.0f64), |(lo, hi), p| (lo.min(p.frequency_hz), hi.max(p.frequency_hz)));
+    // Lines far enough up that the lowest partial may be any of the first
+    // few lines: g_max = g(ANCHOR_LINES-th line) · f_hi/f_lo.
+    let probe = panel.shape.lines(panel.shape.fundamental_factor() * 6.0, None, None);
+    let g_anchor = probe
+        .get(matching::ANCHOR_LINES.min(probe.len()) - 1)
+        .map(|l| l.factor)
+        .unwrap_or(panel.shape.fundamental_factor());
+    let lines = if parts.is_empty() {
+        Vec::new()
+    } else {
+        panel
+            .shape
+            .lines(g_anchor * (f_hi / f_lo) * 1.05, panel.tap, panel.pickup)
+    };
+    let matching = matching::match_modes(parts, &lines, (opts.analysis.min_frequency_hz, f_hi.max(1.0)));
+    let mut fit_result = None;
+    let mut modes = Vec::new();
+    let mut missing = Vec::new();
+    let mut unmatched: Vec<usize> = (0..parts.len()).collect();
+    if let Some(m) = &matching {
+        let obs: Vec<Observation> = m
+            .assignments
+            .iter()
+            .map(|a| Observation {
+                frequency_hz: parts[a.partial].frequency_hz,
+                factor: lines[a.line].factor,
+                mode: lines[a.line].labels[0],
+            })
+            .collect();
+        fit_result = match (opts.model, panel.shape) {
+            (FitModel::FreeAspect, Shape::Rectangle { width, .. }) => {
+                fit::fit_free_aspect(&obs, width.0).or_else(|| fit::fit_isotropic(&obs))
+            }
+            _ => fit::fit_isotropic(&obs),
+        };
+        if let Some(f) = &fit_result {
+            let c = f.wave_speed.value;
+            let height = f.effective_height_m.map(|e| e.value);
+            for (i, a) in m.assignments.iter().enumerate() {
+                let line = &lines[a.line];
+                let p = &parts[a.partial];
+                let predicted = match (height, panel.shape) {
+                    (Some(ly), Shape::Rectangle { width, .. }) => crate::membrane::rect_mode_frequency_hz(
+                        width.0, ly, c, line.labels[0].0, line.labels[0].1,
+                    ),
+                    _ => c * line.factor,
+                };
+                modes.push(ModeRow {
+                    m: line.labels[0].0,
+                    n: line.labels[0].1,
+                    labels: line.label_text(),
+                    predicted_hz: predicted,
+                    measured_hz: p.frequency_hz,
+                    residual_cents: f.residuals_cents[i],
+                    level_db: p.level_db,
+                    snr_db: p.snr_db,
+                    t60_s: p.t60_s,
+                    outlier: f.outliers.contains(&i),
+                    alternatives: a.alternatives.iter().map(|&j| lines[j].label_text()).collect(),
+                });
+            }
+            let third = modes.get(2).or(modes.last()).map(|r| r.measured_hz).unwrap_or(0.0);
+            for &j in &m.missing {
+                let predicted = c * lines[j].factor;
+                missing.push(MissingMode {
+                    labels: lines[j].label_text(),
+                    predicted_hz: predicted,
+                    coupling: lines[j].coupling,
+                });
+                // A strongly coupled line among the lowest modes with no
+                // partial deserves a warning; higher up, weak modes are
+                // normal.
+                if predicted < third && lines[j].coupling >= 2.0 * WEAK_COUPLING {
+                    warnings.push(Warning::ModeWithoutPeak {
+                        labels: lines[j].label_text(),
+                        predicted_hz: predicted,
+                    });
+                }
+            }
+        }
+        unmatched = m.unmatched.clone();
+        if let Some((c_rival, _, n_rival)) = m.rival {
+            warnings.push(Warning::Ambiguous {
+                detail: format!(
+                    "a labelling with wave speed {:.2} m/s ({} modes) explains the partials almost as well as {:.2} m/s",
+                    c_rival,
+                    n_rival,
+                    m.wave_speed_m_per_s
+                ),
+            });
+        }
+    }
+    if let Some(f) = &fit_result {
+        if let Some(w) = quality::systematic_trend(&modes, f) {
+            warnings.push(w);
+        }
+    }
+    let (tension, tension_over_density) = match &fit_result {
+        Some(f) => {
+            let c = f.wave_speed;
+            let t_over = Estimate {
+                value: c.value * c.value,
+                standard_uncertainty: 2.0 * c.value * c.standard_uncertainty,
+            };
+            let t = panel.areal_density.map(|s| Estimate {
+                value: s.0 * t_over.value,
+                standard_uncertainty: s.0 * t_over.standard_uncertainty,
+            });
+            (t, Some(t_over))
+        }
+        None => (None, None),
+    };
+    let median_snr = {
+        let mut s: Vec<f64> = modes.iter().map(|m| m.snr_db).collect();
+        s.sort_by(f64::total_cmp);
+        s.get(s.len() / 2).copied()
+    };
+    if let Some(snr) = median_snr {
+        if snr < quality::LOW_SNR_DB {
+            warnings.push(Warning::LowSnr { median_snr_db: snr });
+        }
+    }
+    let q = quality::grade(fit_result.as_ref(), matching.as_ref(), &modes, &warnings, rec.clipped_fraction);
+    Ok(Measurement {
+        panel: panel.clone(),
+        analysis,
+        lines,
+        matching,
+        fit: fit_result,
+        tension,
+        tension_over_density,
+        modes,
+        missing,
+        unmatched,
+        quality: q,
+        warnings,
+        duration_s: rec.duration_s(),
+    })
+}

@@ -1,0 +1,1410 @@
+//! PNG spectrum overlay: the measured spectrum with the predicted mode lines,
+//! the picked partials and the residuals of the fit, in one 1400×900 picture.
+//!
+//! Conventions:
+//! - The x axis of both panels is frequency in Hz, linear, from 0 to
+//!   [`SpectrumPlot::max_frequency_hz`]. Both panels use the same left and
+//!   right margins, so a frequency sits in the same pixel column in each.
+//! - Levels are in dB re a full-scale sine, as produced by the spectrum
+//!   stage; this module does not rescale them.
+//! - Residuals are in cents, as handed in by the caller (conventionally
+//!   1200·log₂(f_measured / f_predicted)); this module only draws them.
+//! - The spectrum can hold far more bins than the plot has pixel columns.
+//!   Before drawing, it is reduced to the largest level in each pixel column
+//!   ([`column_max`]), so a peak one bin wide is still drawn at full height.
+//! - Text uses the bundled DejaVu Sans (`assets/fonts/DejaVuSans.ttf`),
+//!   registered under the family name [`FONT_FAMILY`]; no system font is
+//!   looked up, so the picture is the same on every machine.
+//!
+//! The picture is drawn into memory and encoded by the small PNG writer in
+//! [`encode`], then written to `NAME.part` and renamed into place. The PNG
+//! writer is ours because the bitmap backend picks the image format from the
+//! file extension, and the temporary name ends in `.part`.
+
+use std::path::{Path, PathBuf};
+use std::sync::OnceLock;
+
+use plotters::coord::types::RangedCoordf64;
+use plotters::coord::Shift;
+use plotters::element::DashedPathElement;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+use crate::error::TonusError;
+
+/// Everything the spectrum picture shows.
+pub struct SpectrumPlot {
+    /// First line of the header, e.g. "panel-a.wav — rectangle 400×300 mm".
+    pub title: String,
+    /// Second line of the header, e.g.
+    /// "T = 2513 ± 9 N/m · rms residual 1.8 cents · quality: sound".
+    pub subtitle: String,
+    /// Spectrum bin frequencies in Hz. May hold ~100k bins; they are reduced
+    /// to one point per pixel column (the column maximum) for drawing.
+    pub freqs_hz: Vec<f64>,
+    /// Measured spectrum in dB re full-scale sine, one value per bin.
+    pub level_db: Vec<f64>,
+    /// Noise floor in dB re full-scale sine, one value per bin, or empty to
+    /// draw no floor.
+    pub floor_db: Vec<f64>,
+    /// Picked peaks.
+    pub partials: Vec<PlotPartial>,
+    /// Predicted mode lines.
+    pub lines: Vec<PlotLine>,
+    /// Frequencies in Hz of the lines set aside as mains hum.
+    pub hum_hz: Vec<f64>,
+    /// Right edge of the x axis, in Hz.
+    pub max_frequency_hz: f64,
+}
+
+/// One picked peak.
+pub struct PlotPartial {
+    /// Peak frequency in Hz.
+    pub frequency_hz: f64,
+    /// Peak level in dB re full-scale sine.
+    pub level_db: f64,
+    /// Whether the peak was assigned to a mode line.
+    pub matched: bool,
+}
+
+/// One predicted mode line.
+pub struct PlotLine {
+    /// Predicted frequency in Hz.
+    pub frequency_hz: f64,
+    /// Mode label, e.g. "(1,2)".
+    pub label: String,
+    /// Whether a partial was assigned to this line.
+    pub matched: bool,
+    /// Residual of the assigned partial in cents, when matched.
+    pub residual_cents: Option<f64>,
+    /// Whether the line is expected to be weak at the tap and pickup
+    /// positions (drawn very faintly when unmatched).
+    pub expected_weak: bool,
+}
+
+/// Width of the picture in pixels.
+pub const WIDTH_PX: u32 = 1400;
+/// Height of the picture in pixels.
+pub const HEIGHT_PX: u32 = 900;
+
+/// Family name under which the bundled font is registered with plotters.
+pub const FONT_FAMILY: &str = "sans";
+
+/// The bundled font (DejaVu Sans, licence in `assets/fonts/DejaVu-LICENSE.txt`).
+static FONT_BYTES: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
+
+/// Span of the level axis below the highest level, in dB. 80 dB shows the
+/// weakest partials worth fitting without squashing the strong ones.
+pub const LEVEL_SPAN_DB: f64 = 80.0;
+/// Space above the highest level, in dB, so the top peak does not touch the frame.
+pub const LEVEL_HEADROOM_DB: f64 = 5.0;
+/// Space below the lowest noise-floor value, in dB, so the floor line stays
+/// visible above the axis when it sets the bottom of the level axis.
+pub const FLOOR_MARGIN_DB: f64 = 5.0;
+/// Smallest half-range of the residual axis, in cents.
+pub const MIN_RESIDUAL_RANGE_CENTS: f64 = 10.0;
+/// Position of the dashed guide lines in the residual panel, in ± cents.
+pub const RESIDUAL_GUIDE_CENTS: f64 = 5.0;
+
+/// Height of the title and subtitle strip, in pixels.
+const HEADER_PX: u32 = 78;
+/// Fraction of the picture below the header given to the spectrum panel.
+const SPECTRUM_PANEL_FRACTION: f64 = 0.70;
+/// Width reserved for the level / residual tick labels and axis name, in
+/// pixels. Equal in both panels so their x axes line up.
+const Y_LABEL_AREA_PX: u32 = 84;
+/// Right margin of both panels, in pixels.
+const RIGHT_MARGIN_PX: u32 = 28;
+/// Left margin of both panels, in pixels.
+const LEFT_MARGIN_PX: u32 = 8;
+/// Rows of staggered mode labels above the spectrum panel.
+const LABEL_ROWS: usize = 3;
+/// Height of one row of mode labels, in pixels.
+const LABEL_ROW_PX: i32 = 17;
+/// Size of the hum triangles, in pixels; their centres sit this far above the axis.
+const HUM_MARK_PX: f64 = 6.0;
+/// Horizontal gap kept free between neighbouring mode labels, in pixels.
+const LABEL_GAP_PX: i32 = 4;
+
+// Colours: a dark ink for the measurement, a green family for everything
+// that matched, a warm family for what did not, magenta for hum.
+const INK: RGBColor = RGBColor(34, 34, 34);
+const SPECTRUM_COLOUR: RGBColor = RGBColor(22, 52, 128);
+const FLOOR_COLOUR: RGBColor = RGBColor(150, 150, 150);
+const MATCHED_LINE_COLOUR: RGBColor = RGBColor(46, 160, 96);
+const MATCHED_MARK_COLOUR: RGBColor = RGBColor(12, 110, 58);
+const UNMATCHED_LINE_COLOUR: RGBColor = RGBColor(242, 160, 70);
+const UNMATCHED_LABEL_COLOUR: RGBColor = RGBColor(186, 104, 20);
+const WEAK_LABEL_COLOUR: RGBColor = RGBColor(175, 175, 175);
+const UNMATCHED_MARK_COLOUR: RGBColor = RGBColor(206, 38, 38);
+const HUM_COLOUR: RGBColor = RGBColor(190, 30, 170);
+const GRID_BOLD_COLOUR: RGBColor = RGBColor(222, 222, 222);
+const GRID_LIGHT_COLOUR: RGBColor = RGBColor(242, 242, 242);
+const GUIDE_COLOUR: RGBColor = RGBColor(160, 160, 160);
+
+/// Draws `plot` and writes it as a PNG to `path`.
+///
+/// The picture goes to `path` + ".part" first and is renamed into place, so
+/// an existing file at `path` is either replaced whole or left untouched; on
+/// any error the temporary file is removed.
+///
+/// # Errors
+/// [`TonusError::Write`] when the plot data are inconsistent (level or floor
+/// arrays of a different length than the frequencies, a right edge that is
+/// not a positive frequency), when drawing fails, or when the file cannot be
+/// written or renamed.
+pub fn write_png(path: &Path, plot: &SpectrumPlot) -> Result<(), TonusError> {
+    let fail = |reason: String| TonusError::Write {
+        path: path.to_path_buf(),
+        reason,
+    };
+    validate(plot).map_err(fail)?;
+    let rgb = render_rgb(plot).map_err(fail)?;
+    let png = encode::png_rgb8(WIDTH_PX, HEIGHT_PX, &rgb).map_err(fail)?;
+
+    let tmp: PathBuf = crate::report::temp_path(path);
+    let written = std::fs::write(&tmp, &png)
+        .map_err(|e| format!("writing {}: {e}", tmp.display()))
+        .and_then(|()| {
+            std::fs::rename(&tmp, path)
+                .map_err(|e| format!("renaming {} into place: {e}", tmp.display()))
+        });
+    if let Err(reason) = written {
+        // Best effort: the temporary file may not exist if the write failed early.
+        let _ = std::fs::remove_file(&tmp);
+        return Err(fail(reason));
+    }
+    Ok(())
+}
+
+/// Checks what the drawing code relies on, with a message naming the field.
+fn validate(plot: &SpectrumPlot) -> Result<(), String> {
+    if !(plot.max_frequency_hz.is_finite() && plot.max_frequency_hz > 0.0) {
+        return Err(format!(
+            "plot right edge max_frequency_hz = {} Hz; expected a positive finite frequency",
+            plot.max_frequency_hz
+        ));
+    }
+    if plot.level_db.len() != plot.freqs_hz.len() {
+        return Err(format!(
+            "spectrum has {} levels for {} frequencies; expected one level per bin",
+            plot.level_db.len(),
+            plot.freqs_hz.len()
+        ));
+    }
+    if !plot.floor_db.is_empty() && plot.floor_db.len() != plot.freqs_hz.len() {
+        return Err(format!(
+            "noise floor has {} values for {} frequencies; expected one per bin or none",
+            plot.floor_db.len(),
+            plot.freqs_hz.len()
+        ));
+    }
+    Ok(())
+}
+
+/// Registers the bundled font with plotters once per process.
+fn ensure_font() -> Result<(), String> {
+    static REGISTERED: OnceLock<bool> = OnceLock::new();
+    let ok = *REGISTERED.get_or_init(|| {
+        plotters::style::register_font(FONT_FAMILY, FontStyle::Normal, FONT_BYTES).is_ok()
+    });
+    if ok {
+        Ok(())
+    } else {
+        Err("the bundled font assets/fonts/DejaVuSans.ttf could not be loaded".to_string())
+    }
+}
+
+/// Turns a plotters error into the reason carried by [`TonusError::Write`].
+fn draw_err<E: std::fmt::Display>(e: E) -> String {
+    format!("drawing the spectrum picture failed: {e}")
+}
+
+/// A font of the bundled family at `size_px`.
+fn font(size_px: f64) -> FontDesc<'static> {
+    (FONT_FAMILY, size_px).into_font()
+}
+
+/// For each of `columns` equal-width columns spanning `[x_min, x_max]`, the
+/// bin with the highest finite value, as `(frequency, value)`, in column
+/// order. Bins outside the span and non-finite values are ignored; empty
+/// columns give no point. Keeping the maximum (not the mean or a sample)
+/// means a peak narrower than a column is drawn at its full height.
+fn column_max(
+    freqs: &[f64],
+    values: &[f64],
+    x_min: f64,
+    x_max: f64,
+    columns: usize,
+) -> Vec<(f64, f64)> {
+    let width = x_max - x_min;
+    if columns == 0 || !width.is_finite() || width <= 0.0 {
+        return Vec::new();
+    }
+    let mut best: Vec<Option<(f64, f64)>> = vec![None; columns];
+    for (&f, &v) in freqs.iter().zip(values) {
+        if !(f.is_finite() && v.is_finite()) || f < x_min || f > x_max {
+            continue;
+        }
+        // The right edge itself belongs to the last column.
+        let col = (((f - x_min) / width * columns as f64) as usize).min(columns - 1);
+        match best[col] {
+            Some((_, b)) if b >= v => {}
+            _ => best[col] = Some((f, v)),
+        }
+    }
+    best.into_iter().flatten().collect()
+}
+
+/// Bottom and top of the level axis in dB: from the higher of
+/// (highest level − [`LEVEL_SPAN_DB`]) and (lowest floor − [`FLOOR_MARGIN_DB`])
+/// to the highest level + [`LEVEL_HEADROOM_DB`]. Only bins inside the x range
+/// count, so a loud bin off the right edge does not squash the picture.
+fn level_range(plot: &SpectrumPlot) -> (f64, f64) {
+    let in_view = |f: f64| f.is_finite() && (0.0..=plot.max_frequency_hz).contains(&f);
+    let finite_max = |it: &mut dyn Iterator<Item = f64>| {
+        it.filter(|v| v.is_finite())
+            .fold(None, |m: Option<f64>, v| Some(m.map_or(v, |m| m.max(v))))
+    };
+    let spectrum_max = finite_max(
+        &mut plot
+            .freqs_hz
+            .iter()
+            .zip(&plot.level_db)
+            .filter(|(f, _)| in_view(**f))
+            .map(|(_, v)| *v),
+    );
+    let partial_max = finite_max(
+        &mut plot
+            .partials
+            .iter()
+            .filter(|p| in_view(p.frequency_hz))
+            .map(|p| p.level_db),
+    );
+    let top_level = match (spectrum_max, partial_max) {
+        (Some(a), Some(b)) => a.max(b),
+        (Some(a), None) | (None, Some(a)) => a,
+        // Nothing to show: a plain full-scale axis.
+        (None, None) => 0.0,
+    };
+    let floor_min = plot
+        .freqs_hz
+        .iter()
+        .zip(&plot.floor_db)
+        .filter(|(f, v)| in_view(**f) && v.is_finite())
+        .map(|(_, v)| *v)
+        .fold(f64::INFINITY, f64::min);
+    let mut bottom = top_level - LEVEL_SPAN_DB;
+    if floor_min.is_finite() {
+        bottom = bottom.max(floor_min - FLOOR_MARGIN_DB);
+    }
+    let top = top_level + LEVEL_HEADROOM_DB;
+    // A floor above the spectrum would leave no room; keep at least 20 dB.
+    (bottom.min(top - 20.0), top)
+}
+
+/// Half-range of the residual axis in cents: the largest |residual| plus 15 %,
+/// rounded up to a multiple of 5, and at least [`MIN_RESIDUAL_RANGE_CENTS`].
+fn residual_range(lines: &[PlotLine]) -> f64 {
+    let largest = lines
+        .iter()
+        .filter(|l| l.matched)
+        .filter_map(|l| l.residual_cents)
+        .filter(|r| r.is_finite())
+        .fold(0.0_f64, |m, r| m.max(r.abs()));
+    ((largest * 1.15 / 5.0).ceil() * 5.0).max(MIN_RESIDUAL_RANGE_CENTS)
+}
+
+/// Keeps labels from overlapping: remembers the pixel rectangles already used.
+#[derive(Default)]
+struct Occupied {
+    /// (left, top, right, bottom) in backend pixels.
+    rects: Vec<(i32, i32, i32, i32)>,
+}
+
+impl Occupied {
+    /// Claims `rect` if it overlaps no claimed rectangle; returns whether it did.
+    fn claim(&mut self, rect: (i32, i32, i32, i32)) -> bool {
+        let (l, t, r, b) = rect;
+        let clash = self
+            .rects
+            .iter()
+            .any(|&(l2, t2, r2, b2)| l < r2 && l2 < r && t < b2 && t2 < b);
+        if !clash {
+            self.rects.push(rect);
+        }
+        !clash
+    }
+}
+
+/// How a mode line is drawn, from most to least important.
+#[derive(Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+enum LineKind {
+    Matched,
+    Unmatched,
+    Weak,
+}
+
+impl LineKind {
+    fn of(line: &PlotLine) -> Self {
+        if line.matched {
+            LineKind::Matched
+        } else if line.expected_weak {
+            LineKind::Weak
+        } else {
+            LineKind::Unmatched
+        }
+    }
+
+    fn line_style(self) -> ShapeStyle {
+        match self {
+            LineKind::Matched => MATCHED_LINE_COLOUR.mix(0.5).stroke_width(2),
+            LineKind::Unmatched => UNMATCHED_LINE_COLOUR.mix(0.75).stroke_width(1),
+            LineKind::Weak => UNMATCHED_LINE_COLOUR.mix(0.22).stroke_width(1),
+        }
+    }
+
+    fn label_colour(self) -> RGBColor {
+        match self {
+            LineKind::Matched => MATCHED_MARK_COLOUR,
+            LineKind::Unmatched => UNMATCHED_LABEL_COLOUR,
+            LineKind::Weak => WEAK_LABEL_COLOUR,
+        }
+    }
+
+    fn legend_text(self) -> &'static str {
+        match self {
+            LineKind::Matched => "predicted mode, matched",
+            LineKind::Unmatched => "predicted mode, no partial",
+            LineKind::Weak => "predicted mode, expected weak",
+        }
+    }
+}
+
+/// Draws the whole picture into an RGB buffer (row-major, 3 bytes a pixel).
+fn render_rgb(plot: &SpectrumPlot) -> Result<Vec<u8>, String> {
+    ensure_font()?;
+    let mut buf = vec![0u8; WIDTH_PX as usize * HEIGHT_PX as usize * 3];
+    {
+        let root = BitMapBackend::with_buffer(&mut buf, (WIDTH_PX, HEIGHT_PX)).into_drawing_area();
+        root.fill(&WHITE).map_err(draw_err)?;
+        let (header, body) = root.split_vertically(HEADER_PX);
+        draw_header(&header, plot)?;
+        let spectrum_px = (f64::from(HEIGHT_PX - HEADER_PX) * SPECTRUM_PANEL_FRACTION) as u32;
+        let (top, bottom) = body.split_vertically(spectrum_px);
+        draw_spectrum_panel(&root, &top, plot)?;
+        draw_residual_panel(&bottom, plot)?;
+        root.present().map_err(draw_err)?;
+    }
+    Ok(buf)
+}
+
+type Area<'a> = DrawingArea<BitMapBackend<'a>, Shift>;
+
+fn draw_header(area: &Area<'_>, plot: &SpectrumPlot) -> Result<(), String> {
+    let centre = (WIDTH_PX / 2) as i32;
+    let top_style = font(27.0)
+        .color(&INK)
+        .pos(Pos::new(HPos::Center, VPos::Top));
+    area.draw(&Text::new(plot.title.as_str(), (centre, 12), top_style))
+        .map_err(draw_err)?;
+    let sub_style = font(18.0)
+        .color(&RGBColor(70, 70, 70))
+        .pos(Pos::new(HPos::Center, VPos::Top));
+    area.draw(&Text::new(plot.subtitle.as_str(), (centre, 48), sub_style))
+        .map_err(draw_err)?;
+    Ok(())
+}
+
+fn draw_spectrum_panel<'b>(
+    root: &Area<'b>,
+    area: &Area<'b>,
+    plot: &SpectrumPlot,
+) -> Result<(), String> {
+    let x_max = plot.max_frequency_hz;
+    let (y_lo, y_hi) = level_range(plot);
+    let lane_px = LABEL_ROWS as u32 * LABEL_ROW_PX as u32 + 8;
+    let mut chart = ChartBuilder::on(area)
+        .margin_top(lane_px)
+        .margin_left(LEFT_MARGIN_PX)
+        .margin_right(RIGHT_MARGIN_PX)
+        .x_label_area_size(30)
+        .y_label_area_size(Y_LABEL_AREA_PX)
+        .build_cartesian_2d(0.0..x_max, y_lo..y_hi)
+        .map_err(draw_err)?;
+    let x_fmt = |v: &f64| format!("{v:.0}");
+    let y_fmt = |v: &f64| format!("{v:.0}");
+    chart
+        .configure_mesh()
+        .x_labels(14)
+        .y_labels(10)
+        .x_label_formatter(&x_fmt)
+        .y_label_formatter(&y_fmt)
+        .y_desc("level (dB re full-scale sine)")
+        .label_style(font(14.0).color(&INK))
+        .axis_desc_style(font(16.0).color(&INK))
+        .bold_line_style(GRID_BOLD_COLOUR)
+        .light_line_style(GRID_LIGHT_COLOUR)
+        .axis_style(RGBColor(120, 120, 120))
+        .draw()
+        .map_err(draw_err)?;
+
+    let in_view = |f: f64| f.is_finite() && f > 0.0 && f <= x_max;
+    let clamp = |v: f64| v.clamp(y_lo, y_hi);
+
+    // Mode lines behind everything else, faintest first.
+    for kind in [LineKind::Weak, LineKind::Unmatched, LineKind::Matched] {
+        let style = kind.line_style();
+        let xs: Vec<f64> = plot
+            .lines
+            .iter()
+            .filter(|l| LineKind::of(l) == kind && in_view(l.frequency_hz))
+            .map(|l| l.frequency_hz)
+            .collect();
+        if xs.is_empty() {
+            continue;
+        }
+        chart
+            .draw_series(
+                xs.iter()
+                    .map(|&f| PathElement::new(vec![(f, y_lo), (f, y_hi)], style)),
+            )
+            .map_err(draw_err)?
+            .label(kind.legend_text())
+            .legend(move |(x, y)| {
+                // The faintest style would be invisible as a 14 px legend tick.
+                let shown = if kind == LineKind::Weak {
+                    UNMATCHED_LINE_COLOUR.mix(0.4).stroke_width(1)
+                } else {
+                    style
+                };
+                PathElement::new(vec![(x + 10, y - 7), (x + 10, y + 7)], shown)
+            });
+    }
+
+    let columns = chart.plotting_area().dim_in_pixel().0 as usize;
+    if !plot.floor_db.is_empty() {
+        let floor = column_max(&plot.freqs_hz, &plot.floor_db, 0.0, x_max, columns);
+        if !floor.is_empty() {
+            let style = FLOOR_COLOUR.stroke_width(2);
+            chart
+                .draw_series(DashedLineSeries::new(
+                    floor.into_iter().map(|(f, v)| (f, clamp(v))),
+                    7,
+                    5,
+                    style,
+                ))
+                .map_err(draw_err)?
+                .label("noise floor")
+                .legend(move |(x, y)| {
+                    DashedPathElement::new(vec![(x, y), (x + 20, y)], 6, 3, style)
+                });
+        }
+    }
+    let spectrum = column_max(&plot.freqs_hz, &plot.level_db, 0.0, x_max, columns);
+    if !spectrum.is_empty() {
+        let style = SPECTRUM_COLOUR.stroke_width(1);
+        chart
+            .draw_series(LineSeries::new(
+                spectrum.into_iter().map(|(f, v)| (f, clamp(v))),
+                style,
+            ))
+            .map_err(draw_err)?
+            .label("measured spectrum")
+            .legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 20, y)], style.stroke_width(2))
+            });
+    }
+
+    // Partials: only those inside the axes, so no marker spills into the margins.
+    let visible = |p: &&PlotPartial| in_view(p.frequency_hz) && (y_lo..=y_hi).contains(&p.level_db);
+    let matched: Vec<&PlotPartial> = plot
+        .partials
+        .iter()
+        .filter(visible)
+        .filter(|p| p.matched)
+        .collect();
+    let unmatched: Vec<&PlotPartial> = plot
+        .partials
+        .iter()
+        .filter(visible)
+        .filter(|p| !p.matched)
+        .collect();
+    if !matched.is_empty() {
+        let style = MATCHED_MARK_COLOUR.filled();
+        chart
+            .draw_series(
+                matched
+                    .iter()
+                    .map(|p| Circle::new((p.frequency_hz, p.level_db), 4, style)),
+            )
+            .map_err(draw_err)?
+            .label("partial, matched")
+            .legend(move |(x, y)| Circle::new((x + 10, y), 4, style));
+    }
+    if !unmatched.is_empty() {
+        let style = UNMATCHED_MARK_COLOUR.stroke_width(2);
+        chart
+            .draw_series(
+                unmatched
+                    .iter()
+                    .map(|p| Cross::new((p.frequency_hz, p.level_db), 5, style)),
+            )
+            .map_err(draw_err)?
+            .label("partial, unmatched")
+            .legend(move |(x, y)| Cross::new((x + 10, y), 5, style));
+    }
+
+    // Hum markers stand on the bottom axis, out of the way of the spectrum.
+    let hum: Vec<f64> = plot
+        .hum_hz
+        .iter()
+        .copied()
+        .filter(|&f| in_view(f))
+        .collect();
+    if !hum.is_empty() {
+        let style = HUM_COLOUR.filled();
+        let plot_height_px = f64::from(chart.plotting_area().dim_in_pixel().1.max(1));
+        let y = y_lo + HUM_MARK_PX * (y_hi - y_lo) / plot_height_px;
+        chart
+            .draw_series(
+                hum.iter()
+                    .map(|&f| TriangleMarker::new((f, y), HUM_MARK_PX as i32, style)),
+            )
+            .map_err(draw_err)?
+            .label("mains hum (set aside)")
+            .legend(move |(x, y)| TriangleMarker::new((x + 10, y), HUM_MARK_PX as i32, style));
+    }
+
+    draw_mode_labels(root, &chart, plot, y_hi)?;
+
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .margin(12)
+        .legend_area_size(30)
+        .label_font(font(14.0).color(&INK))
+        .background_style(WHITE.mix(0.8))
+        .border_style(RGBColor(190, 190, 190))
+        .draw()
+        .map_err(draw_err)?;
+    Ok(())
+}
+
+/// Writes the "(m,n)" labels in staggered rows above the spectrum panel,
+/// each joined to its line by a short leader. Matched lines are placed
+/// first, then unmatched, then expected-weak ones; a label that fits in no
+/// row without overlapping another is left out.
+fn draw_mode_labels<'b>(
+    root: &Area<'b>,
+    chart: &ChartContext<'_, BitMapBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>,
+    plot: &SpectrumPlot,
+    y_hi: f64,
+) -> Result<(), String> {
+    let (x_px, y_px) = chart.plotting_area().get_pixel_range();
+    let plot_top = y_px.start;
+    let mut order: Vec<&PlotLine> = plot
+        .lines
+        .iter()
+        .filter(|l| {
+            l.frequency_hz.is_finite()
+                && l.frequency_hz > 0.0
+                && l.frequency_hz <= plot.max_frequency_hz
+                && !l.label.is_empty()
+        })
+        .collect();
+    order.sort_by(|a, b| {
+        LineKind::of(a)
+            .cmp(&LineKind::of(b))
+            .then(a.frequency_hz.total_cmp(&b.frequency_hz))
+    });
+    let label_font = font(13.0);
+    let mut used = Occupied::default();
+    for line in order {
+        let kind = LineKind::of(line);
+        let x = chart.backend_coord(&(line.frequency_hz, y_hi)).0;
+        let (w, _) = root
+            .estimate_text_size(&line.label, &TextStyle::from(label_font.clone()))
+            .map_err(draw_err)?;
+        let half = w as i32 / 2 + LABEL_GAP_PX / 2;
+        // Keep labels inside the picture at the plot's left and right ends.
+        let centre = x.clamp(x_px.start + half, x_px.end - half);
+        let placed = (0..LABEL_ROWS).find_map(|row| {
+            let bottom = plot_top - 3 - row as i32 * LABEL_ROW_PX;
+            let rect = (centre - half, bottom - LABEL_ROW_PX, centre + half, bottom);
+            used.claim(rect).then_some(bottom)
+        });
+        let Some(bottom) = placed else { continue };
+        let leader = kind.line_style().stroke_width(1);
+        root.draw(&PathElement::new(
+            vec![(x, bottom - 1), (x, plot_top)],
+            leader,
+        ))
+        .map_err(draw_err)?;
+        let style = label_font
+            .clone()
+            .color(&kind.label_colour())
+            .pos(Pos::new(HPos::Center, VPos::Bottom));
+        root.draw(&Text::new(line.label.as_str(), (centre, bottom - 2), style))
+            .map_err(draw_err)?;
+    }
+    Ok(())
+}
+
+fn draw_residual_panel(area: &Area<'_>, plot: &SpectrumPlot) -> Result<(), String> {
+    let x_max = plot.max_frequency_hz;
+    let half = residual_range(&plot.lines);
+    let mut chart = ChartBuilder::on(area)
+        .margin_top(14)
+        .margin_bottom(10)
+        .margin_left(LEFT_MARGIN_PX)
+        .margin_right(RIGHT_MARGIN_PX)
+        .x_label_area_size(46)
+        .y_label_area_size(Y_LABEL_AREA_PX)
+        .build_cartesian_2d(0.0..x_max, -half..half)
+        .map_err(draw_err)?;
+    let x_fmt = |v: &f64| format!("{v:.0}");
+    // Whole cents; zero unsigned so the axis reads -5, 0, +5.
+    let y_fmt = |v: &f64| {
+        if v.abs() < 0.5 {
+            "0".to_string()
+        } else {
+            format!("{v:+.0}")
+        }
+    };
+    chart
+        .configure_mesh()
+        .x_labels(14)
+        .y_labels(9)
+        .x_label_formatter(&x_fmt)
+        .y_label_formatter(&y_fmt)
+        .x_desc("frequency (Hz)")
+        .y_desc("residual (cents)")
+        .label_style(font(14.0).color(&INK))
+        .axis_desc_style(font(16.0).color(&INK))
+        .bold_line_style(GRID_BOLD_COLOUR)
+        .light_line_style(GRID_LIGHT_COLOUR)
+        .axis_style(RGBColor(120, 120, 120))
+        .draw()
+        .map_err(draw_err)?;
+
+    chart
+        .draw_series(LineSeries::new(
+            vec![(0.0, 0.0), (x_max, 0.0)],
+            INK.stroke_width(1),
+        ))
+        .map_err(draw_err)?;
+    for guide in [-RESIDUAL_GUIDE_CENTS, RESIDUAL_GUIDE_CENTS] {
+        chart
+            .draw_series(DashedLineSeries::new(
+                vec![(0.0, guide), (x_max, guide)],
+                8,
+                6,
+                GUIDE_COLOUR.stroke_width(1),
+            ))
+            .map_err(draw_err)?;
+    }
+
+    let points: Vec<(f64, f64, &str)> = plot
+        .lines
+        .iter()
+        .filter(|l| l.matched && l.frequency_hz.is_finite() && l.frequency_hz <= x_max)
+        .filter_map(|l| {
+            l.residual_cents
+                .filter(|r| r.is_finite())
+                .map(|r| (l.frequency_hz, r, l.label.as_str()))
+        })
+        .collect();
+    if points.is_empty() {
+        let style = font(16.0)
+            .color(&GUIDE_COLOUR)
+            .pos(Pos::new(HPos::Center, VPos::Center));
+        let (xr, yr) = chart.plotting_area().get_pixel_range();
+        let root = chart.plotting_area().strip_coord_spec();
+        // Between the zero line and the +5 cent guide (the axis is ±10 cents here).
+        let at = ((xr.end - xr.start) / 2, (yr.end - yr.start) * 3 / 8);
+        root.draw(&Text::new("no matched mode lines", at, style))
+            .map_err(draw_err)?;
+        return Ok(());
+    }
+    // Stems from zero make the sign and size of each residual readable at a glance.
+    chart
+        .draw_series(points.iter().map(|&(f, r, _)| {
+            PathElement::new(
+                vec![(f, 0.0), (f, r)],
+                MATCHED_LINE_COLOUR.mix(0.6).stroke_width(2),
+            )
+        }))
+        .map_err(draw_err)?;
+    chart
+        .draw_series(
+            points
+                .iter()
+                .map(|&(f, r, _)| Circle::new((f, r), 4, MATCHED_MARK_COLOUR.filled())),
+        )
+        .map_err(draw_err)?;
+
+    // Mode labels beside the points, right of the point if free, else left.
+    let label_font = font(12.0);
+    let mut used = Occupied::default();
+    for &(f, r, _) in &points {
+        let (x, y) = chart.backend_coord(&(f, r));
+        used.claim((x - 5, y - 5, x + 5, y + 5));
+    }
+    let area_px = chart.plotting_area().get_pixel_range();
+    for &(f, r, label) in &points {
+        if label.is_empty() {
+            continue;
+        }
+        let (x, y) = chart.backend_coord(&(f, r));
+        let (w, h) = area
+            .estimate_text_size(label, &TextStyle::from(label_font.clone()))
+            .map_err(draw_err)?;
+        let (w, h) = (w as i32, h as i32);
+        // Above a positive residual, below a negative one: away from the zero line.
+        let (top, v_pos) = if r >= 0.0 {
+            (y - h - 6, VPos::Top)
+        } else {
+            (y + 6, VPos::Top)
+        };
+        let candidates = [
+            (x - w / 2, HPos::Left),
+            (x + 7, HPos::Left),
+            (x - 7 - w, HPos::Left),
+        ];
+        for (left, h_pos) in candidates {
+            let rect = (left - 1, top, left + w + 1, top + h);
+            let inside = rect.0 >= area_px.0.start
+                && rect.2 <= area_px.0.end
+                && rect.1 >= area_px.1.start
+                && rect.3 <= area_px.1.end;
+            if inside && used.claim(rect) {
+                let style = label_font
+                    .clone()
+                    .color(&MATCHED_MARK_COLOUR)
+                    .pos(Pos::new(h_pos, v_pos));
+                // The chart area is offset inside `area`; text goes in backend pixels.
+                let (ox, oy) = area.get_base_pixel();
+                area.draw(&Text::new(label, (left - ox, top - oy), style))
+                    .map_err(draw_err)?;
+                break;
+            }
+        }
+    }
+    Ok(())
+}
+
+/// A minimal PNG writer: 8-bit RGB, no interlace, one IDAT chunk.
+///
+/// Each row gets the PNG filter (None, Sub or Up) with the smallest sum of
+/// absolute signed bytes, the usual heuristic (PNG spec, section 12.8). The
+/// filtered rows are compressed as one fixed-Huffman deflate block (RFC 1951,
+/// section 3.2.6) whose only back-references are runs of a repeated byte
+/// (distance 1). Plots are mostly flat colour, which filters to long runs of
+/// zeros, so this simple scheme gives files of a few hundred kilobytes.
+mod encode {
+    /// PNG signature (PNG spec, section 5.2).
+    const SIGNATURE: [u8; 8] = [0x89, b'P', b'N', b'G', 0x0D, 0x0A, 0x1A, 0x0A];
+
+    /// Base length of each deflate length code 257..=285 (RFC 1951, 3.2.5).
+    const LENGTH_BASE: [u16; 29] = [
+        3, 4, 5, 6, 7, 8, 9, 10, 11, 13, 15, 17, 19, 23, 27, 31, 35, 43, 51, 59, 67, 83, 99, 115,
+        131, 163, 195, 227, 258,
+    ];
+    /// Extra bits of each deflate length code 257..=285 (RFC 1951, 3.2.5).
+    const LENGTH_EXTRA: [u8; 29] = [
+        0, 0, 0, 0, 0, 0, 0, 0, 1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3, 4, 4, 4, 4, 5, 5, 5, 5, 0,
+    ];
+    /// Shortest and longest deflate match (RFC 1951, 3.2.5).
+    const MIN_MATCH: usize = 3;
+    const MAX_MATCH: usize = 258;
+
+    /// Encodes `rgb` (row-major, 3 bytes a pixel) as a PNG file.
+    pub fn png_rgb8(width: u32, height: u32, rgb: &[u8]) -> Result<Vec<u8>, String> {
+        let expected = width as usize * height as usize * 3;
+        if rgb.len() != expected || width == 0 || height == 0 {
+            return Err(format!(
+                "image buffer holds {} bytes; expected {expected} for {width}×{height} RGB",
+                rgb.len()
+            ));
+        }
+        let filtered = filter_rows(rgb, width as usize * 3);
+        let mut ihdr = Vec::with_capacity(13);
+        ihdr.extend_from_slice(&width.to_be_bytes());
+        ihdr.extend_from_slice(&height.to_be_bytes());
+        // Bit depth 8, colour type 2 (RGB), deflate, adaptive filtering, no interlace.
+        ihdr.extend_from_slice(&[8, 2, 0, 0, 0]);
+        let mut out = Vec::with_capacity(filtered.len() / 8 + 64);
+        out.extend_from_slice(&SIGNATURE);
+        chunk(&mut out, b"IHDR", &ihdr);
+        chunk(&mut out, b"IDAT", &zlib(&filtered));
+        chunk(&mut out, b"IEND", &[]);
+        Ok(out)
+    }
+
+    /// Appends one chunk: length, type, data, CRC of type and data (PNG spec, 5.3).
+    fn chunk(out: &mut Vec<u8>, kind: &[u8; 4], data: &[u8]) {
+        out.extend_from_slice(&(data.len() as u32).to_be_bytes());
+        let start = out.len();
+        out.extend_from_slice(kind);
+        out.extend_from_slice(data);
+        let crc = crc32(&out[start..]);
+        out.extend_from_slice(&crc.to_be_bytes());
+    }
+
+    /// Filters each row (PNG spec, section 9), prefixing its filter type byte.
+    pub(super) fn filter_rows(rgb: &[u8], stride: usize) -> Vec<u8> {
+        const BPP: usize = 3;
+        let zero_row = vec![0u8; stride];
+        let mut out = Vec::with_capacity(rgb.len() + rgb.len() / stride);
+        let mut candidates: [Vec<u8>; 3] = [vec![0; stride], vec![0; stride], vec![0; stride]];
+        for (i, row) in rgb.chunks_exact(stride).enumerate() {
+            let prev = if i == 0 {
+                &zero_row[..]
+            } else {
+                &rgb[(i - 1) * stride..i * stride]
+            };
+            for x in 0..stride {
+                let left = if x >= BPP { row[x - BPP] } else { 0 };
+                candidates[0][x] = row[x];
+                candidates[1][x] = row[x].wrapping_sub(left);
+                candidates[2][x] = row[x].wrapping_sub(prev[x]);
+            }
+            let cost = |c: &Vec<u8>| {
+                c.iter()
+                    .map(|&b| u64::from((b as i8).unsigned_abs()))
+                    .sum::<u64>()
+            };
+            let best = (0..3).min_by_key(|&k| cost(&candidates[k])).unwrap_or(0);
+            out.push(best as u8);
+            out.extend_from_slice(&candidates[best]);
+        }
+        out
+    }
+
+    /// Wraps a deflate stream in the zlib format (RFC 1950): header, data, Adler-32.
+    pub(super) fn zlib(data: &[u8]) -> Vec<u8> {
+        // CMF 0x78: deflate, 32 KiB window; FLG 0x01 makes CMF·256+FLG a multiple of 31.
+        let mut out = vec![0x78, 0x01];
+        out.extend_from_slice(&deflate_fixed(data));
+        out.extend_from_slice(&adler32(data).to_be_bytes());
+        out
+    }
+
+    /// Deflate bit writer: bits are packed from the least significant end.
+    struct Bits {
+        out: Vec<u8>,
+        acc: u64,
+        count: u32,
+    }
+
+    impl Bits {
+        fn put(&mut self, value: u32, n: u32) {
+            self.acc |= u64::from(value) << self.count;
+            self.count += n;
+            while self.count >= 8 {
+                self.out.push(self.acc as u8);
+                self.acc >>= 8;
+                self.count -= 8;
+            }
+        }
+
+        /// Huffman codes are sent most significant bit first (RFC 1951, 3.1.1).
+        fn put_code(&mut self, code: u32, n: u32) {
+            self.put(code.reverse_bits() >> (32 - n), n);
+        }
+
+        /// Literal/length symbol in the fixed code (RFC 1951, 3.2.6).
+        fn put_symbol(&mut self, sym: u32) {
+            match sym {
+                0..=143 => self.put_code(0x30 + sym, 8),
+                144..=255 => self.put_code(0x190 + sym - 144, 9),
+                256..=279 => self.put_code(sym - 256, 7),
+                _ => self.put_code(0xC0 + sym - 280, 8),
+            }
+        }
+
+        fn finish(mut self) -> Vec<u8> {
+            if self.count > 0 {
+                self.out.push(self.acc as u8);
+            }
+            self.out
+        }
+    }
+
+    /// One final fixed-Huffman block; runs of a repeated byte become
+    /// distance-1 matches, everything else literals.
+    pub(super) fn deflate_fixed(data: &[u8]) -> Vec<u8> {
+        let mut bits = Bits {
+            out: Vec::with_capacity(data.len() / 8 + 16),
+            acc: 0,
+            count: 0,
+        };
+        bits.put(1, 1); // BFINAL
+        bits.put(1, 2); // BTYPE = 01, fixed Huffman codes
+        let mut i = 0;
+        while i < data.len() {
+            let run = if i == 0 {
+                0
+            } else {
+                let prev = data[i - 1];
+                data[i..]
+                    .iter()
+                    .take(MAX_MATCH)
+                    .take_while(|&&b| b == prev)
+                    .count()
+            };
+            if run >= MIN_MATCH {
+                let code = LENGTH_BASE
+                    .iter()
+                    .rposition(|&b| usize::from(b) <= run)
+                    .unwrap_or(0);
+                bits.put_symbol(257 + code as u32);
+                let extra = u32::from(LENGTH_EXTRA[code]);
+                if extra > 0 {
+                    bits.put((run - usize::from(LENGTH_BASE[code])) as u32, extra);
+                }
+                bits.put_code(0, 5); // distance code 0: distance 1
+                i += run;
+            } else {
+                bits.put_symbol(u32::from(data[i]));
+                i += 1;
+            }
+        }
+        bits.put_symbol(256); // end of block
+        bits.finish()
+    }
+
+    /// CRC-32 as used by PNG (ISO 3309 polynomial, reflected, PNG spec annex D).
+    pub(super) fn crc32(data: &[u8]) -> u32 {
+        let mut table = [0u32; 256];
+        for (n, entry) in table.iter_mut().enumerate() {
+            let mut c = n as u32;
+            for _ in 0..8 {
+                c = if c & 1 != 0 {
+                    0xEDB8_8320 ^ (c >> 1)
+                } else {
+                    c >> 1
+                };
+            }
+            *entry = c;
+        }
+        let mut crc = 0xFFFF_FFFFu32;
+        for &b in data {
+            crc = table[((crc ^ u32::from(b)) & 0xFF) as usize] ^ (crc >> 8);
+        }
+        crc ^ 0xFFFF_FFFF
+    }
+
+    /// Adler-32 checksum (RFC 1950, section 8).
+    pub(super) fn adler32(data: &[u8]) -> u32 {
+        const MOD: u32 = 65_521;
+        // 5552 bytes is the longest run that cannot overflow u32 before the modulo (zlib's NMAX).
+        let (mut a, mut b) = (1u32, 0u32);
+        for block in data.chunks(5552) {
+            for &x in block {
+                a += u32::from(x);
+                b += a;
+            }
+            a %= MOD;
+            b %= MOD;
+        }
+        (b << 16) | a
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Small deterministic generator (64-bit LCG, Knuth's MMIX constants) for
+    /// reproducible noise without a dependency.
+    struct Lcg(u64);
+    impl Lcg {
+        fn uniform(&mut self) -> f64 {
+            self.0 = self
+                .0
+                .wrapping_mul(6_364_136_223_846_793_005)
+                .wrapping_add(1_442_695_040_888_963_407);
+            (self.0 >> 11) as f64 / (1u64 << 53) as f64
+        }
+    }
+
+    /// Power of a Lorentzian line of peak power `peak` (linear), centre `f0`
+    /// and half width at half maximum `gamma`, at frequency `f` (all Hz).
+    fn lorentzian(f: f64, f0: f64, gamma: f64, peak: f64) -> f64 {
+        let u = (f - f0) / gamma;
+        peak / (1.0 + u * u)
+    }
+
+    /// A plausible picture: rectangle 400×300 mm, wave speed 50 m/s, so
+    /// f_mn = (c/2)·√((m/Lx)² + (n/Ly)²) (Morse & Ingard, Theoretical
+    /// Acoustics, ch. 5); every mode up to 600 Hz is a predicted line, the
+    /// first ones are matched by Lorentzian peaks over a -90 dB floor with
+    /// noise, plus two stray peaks and 50 Hz hum.
+    fn synthetic_plot(bins: usize) -> SpectrumPlot {
+        let (lx, ly, c, max_f) = (0.400, 0.300, 50.0, 600.0);
+        let mut rng = Lcg(0x5EED);
+        let mut modes: Vec<(f64, u32, u32)> = Vec::new();
+        for m in 1..12 {
+            for n in 1..12 {
+                let f = c / 2.0 * ((m as f64 / lx).powi(2) + (n as f64 / ly).powi(2)).sqrt();
+                if f <= max_f {
+                    modes.push((f, m, n));
+                }
+            }
+        }
+        modes.sort_by(|a, b| a.0.total_cmp(&b.0));
+        let mut lines = Vec::new();
+        let mut peaks: Vec<(f64, f64)> = Vec::new(); // (frequency Hz, peak power)
+        let mut partials = Vec::new();
+        for (k, &(f, m, n)) in modes.iter().enumerate() {
+            let weak = m % 2 == 0 && n % 2 == 0;
+            let matched = k < 14 && !weak;
+            let residual =
+                matched.then(|| 6.0 * (rng.uniform() - 0.5) + if k == 3 { 7.0 } else { 0.0 });
+            if let Some(r) = residual {
+                let f_meas = f * 2f64.powf(r / 1200.0);
+                let level_db = -12.0 - 2.5 * k as f64;
+                peaks.push((f_meas, 10f64.powf(level_db / 10.0)));
+                partials.push(PlotPartial {
+                    frequency_hz: f_meas,
+                    level_db,
+                    matched: true,
+                });
+            }
+            lines.push(PlotLine {
+                frequency_hz: f,
+                label: format!("({m},{n})"),
+                matched,
+                residual_cents: residual,
+                expected_weak: weak,
+            });
+        }
+        for (f, level_db) in [(333.0, -48.0), (471.5, -55.0)] {
+            peaks.push((f, 10f64.powf(level_db / 10.0)));
+            partials.push(PlotPartial {
+                frequency_hz: f,
+                level_db,
+                matched: false,
+            });
+        }
+        for f in [50.0, 150.0] {
+            peaks.push((f, 10f64.powf(-62.0 / 10.0)));
+        }
+        let df = 2000.0 / bins as f64;
+        let freqs_hz: Vec<f64> = (0..bins).map(|i| i as f64 * df).collect();
+        let floor_power = 10f64.powf(-90.0 / 10.0);
+        let level_db = freqs_hz
+            .iter()
+            .map(|&f| {
+                // Exponentially distributed noise power: the periodogram of white noise.
+                let noise = -floor_power * (1.0 - rng.uniform()).ln();
+                let p: f64 = peaks
+                    .iter()
+                    .map(|&(f0, a)| lorentzian(f, f0, 0.05, a))
+                    .sum();
+                10.0 * (noise + p).log10()
+            })
+            .collect();
+        SpectrumPlot {
+            title: "panel-a.wav — rectangle 400×300 mm".into(),
+            subtitle: "T = 2513 ± 9 N/m · rms residual 1.8 cents · quality: sound".into(),
+            floor_db: vec![-90.0; bins],
+            freqs_hz,
+            level_db,
+            partials,
+            lines,
+            hum_hz: vec![50.0, 150.0],
+            max_frequency_hz: max_f,
+        }
+    }
+
+    /// Width and height from the IHDR chunk, which must come first (PNG spec, 5.6).
+    fn png_size(bytes: &[u8]) -> (u32, u32) {
+        assert!(bytes.len() > 33, "file too short for a PNG header");
+        assert_eq!(
+            &bytes[..8],
+            &[0x89, b'P', b'N', b'G', 0x0D, 0x0A, 0x1A, 0x0A]
+        );
+        assert_eq!(&bytes[12..16], b"IHDR");
+        let w = u32::from_be_bytes([bytes[16], bytes[17], bytes[18], bytes[19]]);
+        let h = u32::from_be_bytes([bytes[20], bytes[21], bytes[22], bytes[23]]);
+        (w, h)
+    }
+
+    #[test]
+    fn writes_png_of_the_right_size_and_leaves_no_part_file() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let path = dir.path().join("spectrum.png");
+        write_png(&path, &synthetic_plot(100_000)).expect("png written");
+        let bytes = std::fs::read(&path).expect("png readable");
+        assert_eq!(png_size(&bytes), (WIDTH_PX, HEIGHT_PX));
+        assert_eq!(&bytes[bytes.len() - 8..bytes.len() - 4], b"IEND");
+        assert!(!crate::report::temp_path(&path).exists());
+        let names: Vec<_> = std::fs::read_dir(dir.path())
+            .expect("list dir")
+            .map(|e| e.expect("entry").file_name())
+            .collect();
+        assert_eq!(names, vec![std::ffi::OsString::from("spectrum.png")]);
+    }
+
+    #[test]
+    fn empty_plot_still_renders() {
+        // Nothing fitted: no bins, no lines, no partials. The picture must
+        // still be written (axes, header, "no matched mode lines").
+        let dir = tempfile::tempdir().expect("temp dir");
+        let path = dir.path().join("empty.png");
+        let plot = SpectrumPlot {
+            title: "empty".into(),
+            subtitle: String::new(),
+            freqs_hz: Vec::new(),
+            level_db: Vec::new(),
+            floor_db: Vec::new(),
+            partials: Vec::new(),
+            lines: Vec::new(),
+            hum_hz: Vec::new(),
+            max_frequency_hz: 1000.0,
+        };
+        write_png(&path, &plot).expect("png written");
+        let bytes = std::fs::read(&path).expect("png readable");
+        assert_eq!(png_size(&bytes), (WIDTH_PX, HEIGHT_PX));
+    }
+
+    #[test]
+    fn unwritable_path_is_a_write_error_without_part_file() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let path = dir.path().join("missing-dir").join("spectrum.png");
+        let err = write_png(&path, &synthetic_plot(2_000)).expect_err("must fail");
+        assert!(
+            matches!(err, TonusError::Write { path: ref p, .. } if p == &path),
+            "{err}"
+        );
+        assert!(!crate::report::temp_path(&path).exists());
+    }
+
+    #[test]
+    fn inconsistent_plot_data_is_a_write_error() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let path = dir.path().join("spectrum.png");
+        let mut plot = synthetic_plot(2_000);
+        plot.level_db.pop();
+        let err = write_png(&path, &plot).expect_err("length mismatch");
+        assert!(
+            err.to_string().contains("1999 levels for 2000 frequencies"),
+            "{err}"
+        );
+        let mut plot = synthetic_plot(2_000);
+        plot.max_frequency_hz = f64::NAN;
+        assert!(write_png(&path, &plot).is_err());
+        assert!(!path.exists());
+    }
+
+    #[test]
+    fn column_max_keeps_a_one_bin_peak() {
+        // 100k bins over 0..20 kHz at -90 dB, one bin at -10 dB: far more
+        // bins than the 1000 columns, so averaging or sampling would lose it.
+        let n = 100_000;
+        let freqs: Vec<f64> = (0..n).map(|i| i as f64 * 0.2).collect();
+        let mut values = vec![-90.0; n];
+        values[43_211] = -10.0;
+        let out = column_max(&freqs, &values, 0.0, 20_000.0, 1000);
+        assert!(out.len() <= 1000);
+        // Exact equality: the values are copied, not computed.
+        assert!(out.iter().any(|&(f, v)| v == -10.0 && f == freqs[43_211]));
+        assert!(out.windows(2).all(|w| w[0].0 < w[1].0));
+    }
+
+    #[test]
+    fn column_max_matches_a_brute_force_reference() {
+        let mut rng = Lcg(7);
+        let freqs: Vec<f64> = (0..5_000).map(|i| i as f64 * 0.37).collect();
+        let values: Vec<f64> = freqs.iter().map(|_| -100.0 * rng.uniform()).collect();
+        let (lo, hi, cols) = (100.0, 1500.0, 97);
+        let out = column_max(&freqs, &values, lo, hi, cols);
+        let mut expected = Vec::new();
+        for c in 0..cols {
+            // The obvious way: scan every bin for each column.
+            let in_col = |f: f64| {
+                let k = ((f - lo) / (hi - lo) * cols as f64) as usize;
+                f >= lo && f <= hi && k.min(cols - 1) == c
+            };
+            let best = freqs.iter().zip(&values).filter(|(f, _)| in_col(**f)).fold(
+                None,
+                |b: Option<(f64, f64)>, (&f, &v)| match b {
+                    Some((_, bv)) if bv >= v => b,
+                    _ => Some((f, v)),
+                },
+            );
+            expected.extend(best);
+        }
+        assert_eq!(out, expected);
+    }
+
+    #[test]
+    fn level_axis_follows_the_floor_or_the_span() {
+        let mut plot = synthetic_plot(4_000);
+        let (lo, hi) = level_range(&plot);
+        // Highest peak is the first matched partial at -12 dB; the floor at
+        // -90 dB minus the 5 dB margin is below -12 - 80, so the span wins.
+        let tol = 1e-9; // the bounds are sums of the inputs, exact to rounding
+        assert!((hi - (-12.0 + LEVEL_HEADROOM_DB)).abs() < tol, "{hi}");
+        assert!((lo - (-12.0 - LEVEL_SPAN_DB)).abs() < tol, "{lo}");
+        plot.floor_db = vec![-70.0; plot.freqs_hz.len()];
+        let (lo, _) = level_range(&plot);
+        assert!((lo - (-70.0 - FLOOR_MARGIN_DB)).abs() < tol, "{lo}");
+    }
+
+    #[test]
+    fn residual_axis_is_symmetric_and_at_least_ten_cents() {
+        let line = |r: f64| PlotLine {
+            frequency_hz: 100.0,
+            label: "(1,1)".into(),
+            matched: true,
+            residual_cents: Some(r),
+            expected_weak: false,
+        };
+        assert_eq!(
+            residual_range(&[line(2.0), line(-3.0)]),
+            MIN_RESIDUAL_RANGE_CENTS
+        );
+        // 17 cents · 1.15 = 19.55, rounded up to 20.
+        assert_eq!(residual_range(&[line(-17.0)]), 20.0);
+    }
+
+    #[test]
+    fn crc32_and_adler32_match_published_check_values() {
+        // CRC-32 check value for "123456789" (Rocksoft catalogue, CRC-32/ISO-HDLC).
+        assert_eq!(encode::crc32(b"123456789"), 0xCBF4_3926);
+        // Adler-32 of "Wikipedia", the worked example in RFC 1950's usual references.
+        assert_eq!(encode::adler32(b"Wikipedia"), 0x11E6_0398);
+    }
+
+    /// Decoder for what `deflate_fixed` writes (one fixed-Huffman block),
+    /// written straight from RFC 1951 as an independent check.
+    fn inflate_fixed(data: &[u8]) -> Vec<u8> {
+        let mut pos = 0usize; // bit position
+        let bit = |pos: &mut usize| -> u32 {
+            let b = (data[*pos / 8] >> (*pos % 8)) & 1;
+            *pos += 1;
+            u32::from(b)
+        };
+        let bits =
+            |pos: &mut usize, n: u32| -> u32 { (0..n).fold(0, |acc, i| acc | (bit(pos) << i)) };
+        assert_eq!(bits(&mut pos, 1), 1, "BFINAL");
+        assert_eq!(bits(&mut pos, 2), 1, "BTYPE fixed");
+        let mut out: Vec<u8> = Vec::new();
+        loop {
+            let mut code = 0u32;
+            for _ in 0..7 {
+                code = (code << 1) | bits(&mut pos, 1);
+            }
+            let sym = if code <= 0b001_0111 {
+                256 + code
+            } else {
+                code = (code << 1) | bits(&mut pos, 1);
+                match code {
+                    0x30..=0xBF => code - 0x30,
+                    0xC0..=0xC7 => 280 + code - 0xC0,
+                    _ => {
+                        code = (code << 1) | bits(&mut pos, 1);
+                        144 + code - 0x190
+                    }
+                }
+            };
+            match sym {
+                0..=255 => out.push(sym as u8),
+                256 => break,
+                _ => {
+                    let k = (sym - 257) as usize;
+                    let len = usize::from(encode_tables::BASE[k])
+                        + bits(&mut pos, u32::from(encode_tables::EXTRA[k])) as usize;
+                    let mut dcode = 0u32;
+                    for _ in 0..5 {
+                        dcode = (dcode << 1) | bits(&mut pos, 1);
+                    }
+                    assert_eq!(dcode, 0, "only distance 1 is written");
+                    for _ in 0..len {
+                        let last = *out.last().expect("match after a literal");
+                        out.push(last);
+                    }
+                }
+            }
+        }
+        out
+    }
+
+    /// Length tables copied from RFC 1951, section 3.2.5, for the decoder.
+    mod encode_tables {
+        pub const BASE: [u16; 29] = [
+            3, 4, 5, 6, 7, 8, 9, 10, 11, 13, 15, 17, 19, 23, 27, 31, 35, 43, 51, 59, 67, 83, 99,
+            115, 131, 163, 195, 227, 258,
+        ];
+        pub const EXTRA: [u8; 29] = [
+            0, 0, 0, 0, 0, 0, 0, 0, 1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3, 4, 4, 4, 4, 5, 5, 5, 5, 0,
+        ];
+    }
+
+    #[test]
+    fn deflate_round_trips_runs_and_literals() {
+        let mut rng = Lcg(11);
+        let mut data = vec![0u8; 1000];
+        data.extend((0..3000).map(|_| (rng.uniform() * 256.0) as u8));
+        // Runs of every length around the length-code boundaries.
+        for len in [1, 2, 3, 4, 10, 11, 12, 257, 258, 259, 600] {
+            data.extend(std::iter::repeat_n(len as u8, len));
+        }
+        assert_eq!(inflate_fixed(&encode::deflate_fixed(&data)), data);
+        assert_eq!(inflate_fixed(&encode::deflate_fixed(&[])), Vec::<u8>::new());
+    }
+
+    #[test]
+    fn png_pixels_round_trip_through_filters() {
+        // A 7×5 image with flat, gradient and noisy rows.
+        let (w, h) = (7usize, 5usize);
+        let mut rng = Lcg(3);
+        let rgb: Vec<u8> = (0..w * h * 3)
+            .map(|i| match i / (w * 3) {
+                0 => 255,
+                1 => (i * 9) as u8,
+                _ => (rng.uniform() * 256.0) as u8,
+            })
+            .collect();
+        let png = encode::png_rgb8(w as u32, h as u32, &rgb).expect("encodes");
+        assert_eq!(png_size(&png), (w as u32, h as u32));
+        // IHDR chunk is 8 + 13 + 4 bytes after the signature; IDAT follows.
+        let idat_at = 8 + 25;
+        let len =
+            u32::from_be_bytes(png[idat_at..idat_at + 4].try_into().expect("4 bytes")) as usize;
+        assert_eq!(&png[idat_at + 4..idat_at + 8], b"IDAT");
+        let z = &png[idat_at + 8..idat_at + 8 + len];
+        assert_eq!(&z[..2], &[0x78, 0x01]);
+        let raw = inflate_fixed(&z[2..z.len() - 4]);
+        assert_eq!(z[z.len() - 4..], encode::adler32(&raw).to_be_bytes());
+        // Undo the filters (PNG spec, section 9.2).
+        let stride = w * 3;
+        let mut pixels: Vec<u8> = Vec::new();
+        for (row, line) in raw.chunks_exact(stride + 1).enumerate() {
+            for x in 0..stride {
+                let left = if x >= 3 {
+                    pixels[row * stride + x - 3]
+                } else {
+                    0
+                };
+                let up = if row > 0 {
+                    pixels[(row - 1) * stride + x]
+                } else {
+                    0
+                };
+                let v = line[1 + x];
+                pixels.push(match line[0] {
+                    0 => v,
+                    1 => v.wrapping_add(left),
+                    2 => v.wrapping_add(up),
+                    f => panic!("unexpected filter {f}"),
+                });
+            }
+        }
+        assert_eq!(pixels, rgb);
+    }
+}

@@ -1,0 +1,147 @@
+//! The terminal table.
+
+use crate::partials::PartialAnalysis;
+use crate::pipeline::Measurement;
+use crate::units::{sig, TensionUnit};
+use std::fmt::Write;
+use std::path::Path;
+
+fn opt(v: Option<f64>, digits: usize) -> String {
+    v.map(|x| sig(x, digits)).unwrap_or_else(|| "–".into())
+}
+
+/// The partial table.
+pub fn partials_table(file: &Path, a: &PartialAnalysis) -> String {
+    let mut s = String::new();
+    let _ = writeln!(
+        s,
+        "{}  tap at {:.3} s, {:.0} ms analysed, {} partials",
+        file.display(),
+        a.tap.onset_s,
+        a.tap.span_s * 1e3,
+        a.partials.len()
+    );
+    let _ = writeln!(s, "{:>11} {:>9} {:>8} {:>8} {:>8}", "freq [Hz]", "level[dB]", "SNR[dB]", "T60 [s]", "Q");
+    for p in &a.partials {
+        let _ = writeln!(
+            s,
+            "{:>11.3} {:>9.1} {:>8.1} {:>8} {:>8}",
+            p.frequency_hz,
+            p.level_db,
+            p.snr_db,
+            opt(p.t60_s, 3),
+            opt(p.q, 3)
+        );
+    }
+    for h in &a.hum {
+        let _ = writeln!(
+            s,
+            "{:>11.3}  hum ({} × {:.0} Hz), set aside",
+            h.partial.frequency_hz, h.harmonic, h.mains_hz
+        );
+    }
+    for w in &a.warnings {
+        let _ = writeln!(s, "warning: {w}");
+    }
+    s
+}
+
+/// Formats an estimate as "value ± u unit".
+pub fn pm(value: f64, u: f64, unit: &str) -> String {
+    // Two significant digits of the uncertainty fix the decimals.
+    let decimals = if u > 0.0 {
+        (1 - u.log10().floor() as i32).max(0) as usize
+    } else {
+        3
+    };
+    format!("{value:.decimals$} ± {u:.decimals$} {unit}")
+}
+
+/// The fit summary and mode table.
+pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
+    let mut s = String::new();
+    let _ = writeln!(s, "{} — {}", file.display(), m.panel.describe());
+    match (&m.fit, m.tension, m.tension_over_density) {
+        (Some(f), t, Some(tod)) => {
+            if let Some(t) = t {
+                let k = unit.newtons_per_meter();
+                let _ = writeln!(
+                    s,
+                    "tension      {}  (k = 1)",
+                    pm(t.value / k, t.standard_uncertainty / k, unit.symbol())
+                );
+            } else {
+                let _ = writeln!(s, "tension      – (give --areal-density to get N/m)");
+            }
+            let _ = writeln!(
+                s,
+                "T/σ          {}",
+                pm(tod.value, tod.standard_uncertainty, "m²/s²")
+            );
+            let _ = writeln!(
+                s,
+                "wave speed   {}",
+                pm(f.wave_speed.value, f.wave_speed.standard_uncertainty, "m/s")
+            );
+            if let Some(h) = f.effective_height_m {
+                let _ = writeln!(
+                    s,
+                    "eff. height  {}",
+                    pm(h.value * 1e3, h.standard_uncertainty * 1e3, "mm")
+                );
+            }
+            let _ = writeln!(
+                s,
+                "fit          {} modes, rms residual {:.2} cents, {}",
+                f.n_used, f.rms_residual_cents, f.uncertainty_method
+            );
+        }
+        _ => {
+            let _ = writeln!(s, "tension      – (no fit)");
+        }
+    }
+    let _ = writeln!(
+        s,
+        "quality      {}{}",
+        m.quality.grade.name(),
+        if m.quality.reasons.is_empty() {
+            String::new()
+        } else {
+            format!(": {}", m.quality.reasons.join("; "))
+        }
+    );
+    if !m.modes.is_empty() {
+        let _ = writeln!(s);
+        let _ = writeln!(
+            s,
+            "{:<13} {:>10} {:>10} {:>8} {:>7} {:>6} {:>7}",
+            "mode", "pred [Hz]", "meas [Hz]", "cents", "dB", "SNR", "T60 [s]"
+        );
+        for r in &m.modes {
+            let _ = writeln!(
+                s,
+                "{:<13} {:>10.2} {:>10.2} {:>8.2} {:>7.1} {:>6.1} {:>7}{}",
+                r.labels,
+                r.predicted_hz,
+                r.measured_hz,
+                r.residual_cents,
+                r.level_db,
+                r.snr_db,
+                opt(r.t60_s, 3),
+                if r.outlier { "  outlier, not fitted" } else { "" }
+            );
+        }
+    }
+    if !m.unmatched.is_empty() {
+        let list: Vec<String> = m
+            .unmatched
+            .iter()
+            .map(|&i| format!("{:.1}", m.analysis.partials[i].frequency_hz))
+            .collect();
+        let _ = writeln!(s, "unmatched partials [Hz]: {}", list.join(", "));
+    }
+    for w in &m.warnings {
+        let _ = writeln!(s, "warning: {w}");
+    }
+    s
+}
