@@ -18,6 +18,10 @@ use serde::Serialize;
 pub const DEFAULT_MIN_SNR_DB: f64 = 10.0;
 /// Default minimum topographic prominence of a partial, dB.
 pub const DEFAULT_MIN_PROMINENCE_DB: f64 = 6.0;
+/// Peaks more than this far below the strongest are dropped, dB: the
+/// analysis window's flat start leaves skirt ripple about 80 dB down, and
+/// no mode that weak carries weight in a fit.
+pub const DYNAMIC_RANGE_DB: f64 = 70.0;
 /// Default lowest frequency searched, Hz.
 pub const DEFAULT_MIN_FREQUENCY_HZ: f64 = 20.0;
 /// Default largest number of partials kept (the strongest).
@@ -273,6 +277,9 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
         });
     }
     cands.sort_by(|a, b| b.level_db.total_cmp(&a.level_db));
+    if let Some(top) = cands.first().map(|p| p.level_db) {
+        cands.retain(|p| p.level_db >= top - DYNAMIC_RANGE_DB);
+    }
     cands.truncate(cfg.max_partials);
     cands
 }

@@ -11,13 +11,13 @@
 //!   1200·log₂(f_measured / f_predicted)); this module only draws them.
 //! - The spectrum can hold far more bins than the plot has pixel columns.
 //!   Before drawing, it is reduced to the largest level in each pixel column
-//!   ([`column_max`]), so a peak one bin wide is still drawn at full height.
+//!   (`column_max`), so a peak one bin wide is still drawn at full height.
 //! - Text uses the bundled DejaVu Sans (`assets/fonts/DejaVuSans.ttf`),
 //!   registered under the family name [`FONT_FAMILY`]; no system font is
 //!   looked up, so the picture is the same on every machine.
 //!
 //! The picture is drawn into memory and encoded by the small PNG writer in
-//! [`encode`], then written to `NAME.part` and renamed into place. The PNG
+//! `encode`, then written to `NAME.part` and renamed into place. The PNG
 //! writer is ours because the bitmap backend picks the image format from the
 //! file extension, and the temporary name ends in `.part`.
 
