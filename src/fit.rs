@@ -81,6 +81,9 @@ pub struct FitResult {
     pub residuals_cents: Vec<f64>,
     /// Observations left out as outliers (indices).
     pub outliers: Vec<usize>,
+    /// Observations left out because their peak is shared with a
+    /// neighbouring line (indices; set by the pipeline).
+    pub left_out_crowded: Vec<usize>,
     /// Root-mean-square residual of the kept observations, cents.
     pub rms_residual_cents: f64,
     /// Observations kept.
@@ -163,6 +166,7 @@ pub fn fit_isotropic(obs: &[Observation]) -> Option<FitResult> {
         effective_height_m: None,
         residuals_cents: resid.iter().map(|r| r * CENTS_PER_LN).collect(),
         outliers: (0..obs.len()).filter(|i| !keep.contains(i)).collect(),
+        left_out_crowded: Vec::new(),
         rms_residual_cents: (ss / n as f64).sqrt() * CENTS_PER_LN,
         n_used: n,
         dof: n.saturating_sub(1),
@@ -293,6 +297,7 @@ pub fn fit_free_aspect(obs: &[Observation], width_m: f64) -> Option<FitResult> {
         }),
         residuals_cents: resid_all,
         outliers: (0..obs.len()).filter(|i| !keep.contains(i)).collect(),
+        left_out_crowded: Vec::new(),
         rms_residual_cents: (ss / n as f64).sqrt() * CENTS_PER_LN,
         n_used: n,
         dof: n.saturating_sub(2),

@@ -6,16 +6,28 @@
 //! nearest line (in cents), c is re-estimated from the assignment, and the
 //! two steps repeat until the assignment stops changing.
 //!
-//! Hypotheses are ranked by a log-likelihood ratio against "every partial
-//! is spurious":
-//! - a partial assigned with residual r (cents) adds
-//!   ln(B / (s√(2π))) − r²/(2s²), with B the searched band in cents and s
-//!   [`MATCH_SCATTER_CENTS`] the scatter the model is allowed;
-//! - a predicted line inside the matched band with no partial adds
-//!   ln(1 − p·κ), κ its expected coupling at the tap and pickup points and p
-//!   [`DETECTION_PROBABILITY`], so a hypothesis that explains the partials
-//!   with a denser set of lines (half the true wave speed, say) pays for
-//!   the lines it predicts and does not see.
+//! Hypotheses are ranked by the log-likelihood of the measured partial
+//! frequencies under a mixture model, relative to "every partial is
+//! spurious". In cents, each partial is spurious with probability π
+//! ([`SPURIOUS_FRACTION`], uniform over the searched band of B cents) or
+//! one of the predicted lines in the band, line k with prior weight w_k
+//! proportional to its expected coupling κ_k at the tap and pickup points,
+//! and then normal about it with the scatter s = [`MATCH_SCATTER_CENTS`]:
+//!
+//! ln L = Σ_i ln[ π/B + (1 − π) Σ_k w_k·N(r_ik; s) ] − N·ln(π/B).
+//!
+//! Each isolated, coupled line below the [`LOW_MODES`]-th assigned partial
+//! that shows no partial adds ln(1 − p·κ), p = [`DETECTION_PROBABILITY`]:
+//! the low modes of a tap are always there, and a hypothesis that
+//! predicts low lines nobody sees (a wave speed halved, whose (1,1) sits
+//! an octave below the real fundamental) pays for them.
+//!
+//! A hypothesis that predicts many lines (half the true wave speed, say)
+//! spreads its weight thin, so chance coincidences in a crowded spectrum
+//! earn little; one that predicts few lines explains few partials. This
+//! is the standard finite-mixture likelihood (G. McLachlan and D. Peel,
+//! "Finite Mixture Models", Wiley 2000, ch. 1) with a uniform outlier
+//! component.
 //!
 //! Two hypotheses with different c whose scores differ by less than
 //! [`AMBIGUITY_MARGIN`] (a likelihood ratio of about 7) are reported as
@@ -29,8 +41,13 @@ use serde::Serialize;
 pub const MATCH_SCATTER_CENTS: f64 = 15.0;
 /// A partial further than this from every line is not assigned, cents.
 pub const MATCH_GATE_CENTS: f64 = 50.0;
-/// Probability that a line with full coupling shows a partial.
+/// Probability that an isolated low line with full coupling shows a partial.
 pub const DETECTION_PROBABILITY: f64 = 0.6;
+/// Missing lines are counted up to the frequency of this many assigned
+/// partials (the low modes, which a tap should always show).
+pub const LOW_MODES: usize = 5;
+/// Prior probability that a partial is spurious (noise, rattle, hum).
+pub const SPURIOUS_FRACTION: f64 = 0.2;
 /// Score margin (natural-log units) under which two hypotheses are ambiguous.
 pub const AMBIGUITY_MARGIN: f64 = 2.0;
 /// Partials tried as the anchor of a hypothesis (strongest and lowest).
@@ -110,9 +127,16 @@ pub fn match_modes(partials: &[Partial], lines: &[ModeLine], band_hz: (f64, f64)
             seeds.push(partials[i].frequency_hz / line.factor);
         }
     }
+    let spacing = line_spacing_cents(lines, band_cents);
+    let ctx = ScoreContext {
+        spacing: &spacing,
+        band_cents,
+        f_low: band_hz.0.max(1.0),
+        f_high: by_freq.last().map(|&i| partials[i].frequency_hz * 1.02).unwrap_or(band_hz.1),
+    };
     let mut results: Vec<Matching> = Vec::new();
     for c0 in seeds {
-        let m = refine(partials, lines, c0, band_cents);
+        let m = refine(partials, lines, c0, &ctx);
         // Keep one result per distinct wave speed (within a cent).
         if let Some(same) = results
             .iter_mut()
@@ -142,7 +166,7 @@ pub fn match_modes(partials: &[Partial], lines: &[ModeLine], band_hz: (f64, f64)
 }
 
 /// Alternating assignment and re-estimation of c from a seed.
-fn refine(partials: &[Partial], lines: &[ModeLine], c0: f64, band_cents: f64) -> Matching {
+fn refine(partials: &[Partial], lines: &[ModeLine], c0: f64, ctx: &ScoreContext) -> Matching {
     let mut c = c0;
     let mut assignments = assign(partials, lines, c);
     for _ in 0..6 {
@@ -168,7 +192,37 @@ fn refine(partials: &[Partial], lines: &[ModeLine], c0: f64, band_cents: f64) ->
             break;
         }
     }
-    score(partials, lines, c, assignments, band_cents)
+    score(partials, lines, c, assignments, ctx)
+}
+
+/// What the score needs besides the hypothesis.
+struct ScoreContext<'a> {
+    spacing: &'a [f64],
+    band_cents: f64,
+    f_low: f64,
+    f_high: f64,
+}
+
+/// Local spacing of the lines that can show a partial (coupling at least
+/// [`WEAK_COUPLING`]), in cents: half the interval between a line's two
+/// neighbours, or the interval to the one neighbour at an end, capped at
+/// the band.
+fn line_spacing_cents(lines: &[ModeLine], band_cents: f64) -> Vec<f64> {
+    let live: Vec<usize> = (0..lines.len()).filter(|&j| lines[j].coupling >= WEAK_COUPLING).collect();
+    (0..lines.len())
+        .map(|j| {
+            let g = lines[j].factor;
+            let prev = live.iter().rev().map(|&i| lines[i].factor).find(|&f| f < g * (1.0 - 1e-9));
+            let next = live.iter().map(|&i| lines[i].factor).find(|&f| f > g * (1.0 + 1e-9));
+            let d = match (prev, next) {
+                (Some(p), Some(n)) => 0.5 * cents(n, p),
+                (Some(p), None) => cents(g, p),
+                (None, Some(n)) => cents(n, g),
+                (None, None) => band_cents,
+            };
+            d.min(band_cents)
+        })
+        .collect()
 }
 
 /// Nearest-line assignment at wave speed c. A line takes at most one
@@ -229,12 +283,42 @@ fn assign(partials: &[Partial], lines: &[ModeLine], c: f64) -> Vec<Assignment> {
     out
 }
 
-fn score(partials: &[Partial], lines: &[ModeLine], c: f64, assignments: Vec<Assignment>, band_cents: f64) -> Matching {
+fn score(partials: &[Partial], lines: &[ModeLine], c: f64, assignments: Vec<Assignment>, ctx: &ScoreContext) -> Matching {
     let s = MATCH_SCATTER_CENTS;
-    let per_match = (band_cents / (s * (2.0 * std::f64::consts::PI).sqrt())).ln();
+    let norm = s * (2.0 * std::f64::consts::PI).sqrt();
+    // Lines in the band and their prior weights.
+    let in_band: Vec<usize> = (0..lines.len())
+        .filter(|&j| {
+            let f = c * lines[j].factor;
+            f >= ctx.f_low && f <= ctx.f_high
+        })
+        .collect();
+    let weight_sum: f64 = in_band.iter().map(|&j| lines[j].coupling).sum();
+    let spurious = SPURIOUS_FRACTION / ctx.band_cents;
     let mut total = 0.0;
-    for a in &assignments {
-        total += per_match - a.residual_cents.powi(2) / (2.0 * s * s);
+    for p in partials {
+        let g = p.frequency_hz / c;
+        let k = lines.partition_point(|l| l.factor < g);
+        let mut mode_density = 0.0;
+        if weight_sum > 0.0 {
+            // Lines beyond 5s contribute nothing measurable.
+            let mut j = k;
+            while j > 0 && cents(p.frequency_hz, c * lines[j - 1].factor) < 5.0 * s {
+                j -= 1;
+            }
+            while j < lines.len() {
+                let r = cents(p.frequency_hz, c * lines[j].factor);
+                if r < -5.0 * s {
+                    break;
+                }
+                let f = c * lines[j].factor;
+                if f >= ctx.f_low && f <= ctx.f_high {
+                    mode_density += lines[j].coupling / weight_sum * (-r * r / (2.0 * s * s)).exp() / norm;
+                }
+                j += 1;
+            }
+        }
+        total += (1.0 + (1.0 - SPURIOUS_FRACTION) * mode_density / spurious).ln();
     }
     let mut matched_line = vec![false; lines.len()];
     for a in &assignments {
@@ -244,16 +328,20 @@ fn score(partials: &[Partial], lines: &[ModeLine], c: f64, assignments: Vec<Assi
         .iter()
         .map(|a| partials[a.partial].frequency_hz)
         .fold(0.0, f64::max);
+    let low_top = assignments
+        .get(LOW_MODES.min(assignments.len()).saturating_sub(1))
+        .map(|a| partials[a.partial].frequency_hz)
+        .unwrap_or(0.0);
     let mut missing = Vec::new();
     for (j, l) in lines.iter().enumerate() {
         let f = c * l.factor;
         if f > top * (1.0 + 1e-9) {
             break;
         }
-        if !matched_line[j] {
-            total += (1.0 - DETECTION_PROBABILITY * l.coupling).ln();
-            if l.coupling >= WEAK_COUPLING {
-                missing.push(j);
+        if !matched_line[j] && ctx.spacing[j] >= 2.0 * s && l.coupling >= WEAK_COUPLING {
+            missing.push(j);
+            if f <= low_top * (1.0 + 1e-9) {
+                total += (1.0 - DETECTION_PROBABILITY * l.coupling).ln();
             }
         }
     }

@@ -169,7 +169,7 @@ pub fn analyse_with(
     let mut partials = Vec::new();
     let mut hum = Vec::new();
     for p in found {
-        match hum_family(&p, &cfg.mains_hz) {
+        match hum_family(&p, &cfg.mains_hz, spec.background.as_ref()) {
             Some((mains, k)) if tap.onset_found => hum.push(HumLine {
                 partial: p,
                 mains_hz: mains,
@@ -201,11 +201,18 @@ pub fn analyse_with(
     })
 }
 
-/// The mains family a sustained partial belongs to, if any.
-fn hum_family(p: &Partial, mains: &[f64]) -> Option<(f64, u32)> {
-    let sustained = match p.decay_rate_db_per_s {
-        Some(r) => r < SUSTAINED_DECAY_DB_PER_S,
-        None => false,
+/// Level (dB) within which a line already sounding before the tap counts
+/// as steady: a partial of the tap is absent from the background.
+pub const STEADY_LEVEL_DB: f64 = 6.0;
+
+/// The mains family a steady partial belongs to, if any. Steady means
+/// present in the background before the tap at nearly its level, or, with
+/// no background to compare, not decaying.
+fn hum_family(p: &Partial, mains: &[f64], background: Option<&spectrum::Background>) -> Option<(f64, u32)> {
+    let sustained = match (background, p.decay_rate_db_per_s) {
+        (Some(b), _) => b.level_near(p.frequency_hz) >= p.level_db - STEADY_LEVEL_DB,
+        (None, Some(r)) => r < SUSTAINED_DECAY_DB_PER_S,
+        (None, None) => false,
     };
     if !sustained {
         return None;

@@ -13,6 +13,12 @@ use crate::warning::Warning;
 use realfft::RealFftPlanner;
 use serde::Serialize;
 
+/// A line closer than this many resolution widths (1/span) to another
+/// coupled line is crowded.
+pub const CROWDED_RESOLUTIONS: f64 = 4.0;
+/// Crowded modes are left out only when at least this many isolated remain.
+pub const MIN_ISOLATED_MODES: usize = 4;
+
 /// Options of a fit.
 #[derive(Debug, Clone)]
 pub struct FitOptions {
@@ -54,6 +60,8 @@ pub struct ModeRow {
     pub t60_s: Option<f64>,
     /// Left out of the fit as an outlier.
     pub outlier: bool,
+    /// Left out of the fit because a neighbouring line shares its peak.
+    pub crowded: bool,
     /// Other labels that fit this partial about as well.
     pub alternatives: Vec<String>,
 }
@@ -157,12 +165,57 @@ pub fn measure_with(
                 mode: lines[a.line].labels[0],
             })
             .collect();
+        // A partial whose line has a coupled neighbour closer than
+        // CROWDED_RESOLUTIONS resolution widths (1/span) shares its peak
+        // with that neighbour; its frequency is pulled, so it is left out of
+        // the fit whenever enough isolated modes remain.
+        let span_s = analysis.tap.span_s.max(1e-3);
+        let c0 = m.wave_speed_m_per_s;
+        let crowded: Vec<bool> = m
+            .assignments
+            .iter()
+            .map(|a| {
+                let f = c0 * lines[a.line].factor;
+                let near = lines.iter().enumerate().any(|(j, l)| {
+                    j != a.line
+                        && l.coupling >= WEAK_COUPLING
+                        && (c0 * l.factor - f).abs() < CROWDED_RESOLUTIONS / span_s
+                });
+                near || !a.alternatives.is_empty()
+            })
+            .collect();
+        let isolated: Vec<usize> = (0..obs.len()).filter(|&i| !crowded[i]).collect();
+        let fit_idx: Vec<usize> = if isolated.len() >= MIN_ISOLATED_MODES {
+            isolated
+        } else {
+            (0..obs.len()).collect()
+        };
+        let fit_obs: Vec<Observation> = fit_idx.iter().map(|&i| obs[i].clone()).collect();
         fit_result = match (opts.model, panel.shape) {
             (FitModel::FreeAspect, Shape::Rectangle { width, .. }) => {
-                fit::fit_free_aspect(&obs, width.0).or_else(|| fit::fit_isotropic(&obs))
+                fit::fit_free_aspect(&fit_obs, width.0).or_else(|| fit::fit_isotropic(&fit_obs))
             }
-            _ => fit::fit_isotropic(&obs),
+            _ => fit::fit_isotropic(&fit_obs),
         };
+        // Residuals for every assignment, outliers in its numbering.
+        if let Some(f) = fit_result.as_mut() {
+            let c = f.wave_speed.value;
+            let ly = f.effective_height_m.map(|e| e.value);
+            f.residuals_cents = obs
+                .iter()
+                .map(|o| {
+                    let pred = match (ly, panel.shape) {
+                        (Some(ly), Shape::Rectangle { width, .. }) => {
+                            crate::membrane::rect_mode_frequency_hz(width.0, ly, c, o.mode.0, o.mode.1)
+                        }
+                        _ => c * o.factor,
+                    };
+                    fit::CENTS_PER_LN * (o.frequency_hz / pred).ln()
+                })
+                .collect();
+            f.outliers = f.outliers.iter().map(|&k| fit_idx[k]).collect();
+            f.left_out_crowded = (0..obs.len()).filter(|i| !fit_idx.contains(i)).collect();
+        }
         if let Some(f) = &fit_result {
             let c = f.wave_speed.value;
             let height = f.effective_height_m.map(|e| e.value);
@@ -186,6 +239,7 @@ pub fn measure_with(
                     snr_db: p.snr_db,
                     t60_s: p.t60_s,
                     outlier: f.outliers.contains(&i),
+                    crowded: f.left_out_crowded.contains(&i),
                     alternatives: a.alternatives.iter().map(|&j| lines[j].label_text()).collect(),
                 });
             }

@@ -145,7 +145,8 @@ pub fn grade(
         }
     }
     let outliers = modes.iter().filter(|m| m.outlier).count();
-    if outliers * 5 > modes.len().max(1) {
+    let fitted = modes.iter().filter(|m| !m.crowded).count();
+    if outliers * 5 > fitted.max(1) {
         worse(
             Grade::Fair,
             format!("{outliers} of {} matched partials left out as outliers", modes.len()),
@@ -161,7 +162,7 @@ pub fn grade(
 pub fn systematic_trend(modes: &[ModeRow], fit: &FitResult) -> Option<Warning> {
     let pts: Vec<(f64, f64)> = modes
         .iter()
-        .filter(|m| !m.outlier)
+        .filter(|m| !m.outlier && !m.crowded)
         .map(|m| (m.measured_hz.log2(), m.residual_cents))
         .collect();
     if pts.len() < 5 {

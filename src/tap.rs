@@ -64,32 +64,48 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
     let hop = frame / 2;
     let n = samples.len();
     let n_frames = if n >= frame { (n - frame) / hop + 1 } else { 1 };
-    let energy_db: Vec<f64> = (0..n_frames)
-        .map(|j| {
-            let s = &samples[j * hop..(j * hop + frame).min(n)];
-            let e = s.iter().map(|x| x * x).sum::<f64>() / s.len().max(1) as f64;
-            10.0 * (e + 1e-20).log10()
-        })
+    // Onsets are found on the first difference of the signal: a tap's
+    // attack is broadband, while hum and other low, steady sound — whose
+    // energy in 4 ms frames swings with its phase — is suppressed by
+    // 2π·f/fs (−44 dB at 50 Hz and 48 kHz).
+    let diff: Vec<f64> = std::iter::once(0.0)
+        .chain(samples.windows(2).map(|w| w[1] - w[0]))
         .collect();
-    let mut sorted = energy_db.clone();
-    sorted.sort_by(f64::total_cmp);
+    let frame_db = |sig: &[f64], len: usize| -> Vec<f64> {
+        (0..n_frames)
+            .map(|j| {
+                let s = &sig[(j * hop).min(n)..(j * hop + len).min(n)];
+                let e = s.iter().map(|x| x * x).sum::<f64>() / s.len().max(1) as f64;
+                10.0 * (e + 1e-20).log10()
+            })
+            .collect()
+    };
+    let energy_db = frame_db(&diff, frame);
+    // The decay envelope uses the signal itself over 20 ms, a whole period
+    // of 50 Hz hum, so that hum reads as a steady background.
+    let envelope_db = frame_db(samples, 5 * frame);
+    let tenth = |v: &[f64]| {
+        let mut sorted = v.to_vec();
+        sorted.sort_by(f64::total_cmp);
+        (sorted[sorted.len() / 10], *sorted.last().unwrap_or(&sorted[0]))
+    };
     // The quietest tenth of the file is taken as background: the pre-roll
     // and the end of the decay.
-    let background_db = sorted[sorted.len() / 10];
-    let peak_db = *sorted.last().unwrap_or(&background_db);
+    let (background_onset_db, _) = tenth(&energy_db);
+    let (background_db, peak_db) = tenth(&envelope_db);
 
     let lookback = ((0.02 * sample_rate_hz) as usize / hop).max(2);
     let mut onset_frame = None;
     for j in 0..n_frames {
         let lo = j.saturating_sub(lookback);
         let recent_min = if j == 0 {
-            background_db
+            background_onset_db
         } else {
             energy_db[lo..j].iter().copied().fold(f64::INFINITY, f64::min)
         };
         let rise = energy_db[j] - recent_min.min(energy_db[j]);
-        if energy_db[j] > background_db + ONSET_ABOVE_FLOOR_DB
-            && (rise > ONSET_RISE_DB || j == 0 && energy_db[j] > background_db + ONSET_RISE_DB)
+        if energy_db[j] > background_onset_db + ONSET_ABOVE_FLOOR_DB
+            && (rise > ONSET_RISE_DB || j == 0 && energy_db[j] > background_onset_db + ONSET_RISE_DB)
         {
             onset_frame = Some(j);
             break;
@@ -109,7 +125,7 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
             onset_found: false,
         };
     };
-    let onset_sample = refine_onset(samples, of * hop, frame);
+    let onset_sample = refine_onset(&diff, of * hop, frame);
 
     // Further taps: a frame that tops the envelope of the preceding
     // look-back window by RETAP_EXCESS_DB.
@@ -122,9 +138,9 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
             .copied()
             .fold(f64::NEG_INFINITY, f64::max);
         if energy_db[j] > prev_max + RETAP_EXCESS_DB
-            && energy_db[j] > background_db + ONSET_ABOVE_FLOOR_DB
+            && energy_db[j] > background_onset_db + ONSET_ABOVE_FLOOR_DB
         {
-            further.push(refine_onset(samples, j * hop, frame));
+            further.push(refine_onset(&diff, j * hop, frame));
             j += retap_back;
         } else {
             j += 1;
@@ -134,7 +150,7 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
     // The span ends when the decay reaches the background, at the next tap,
     // or at MAX_SPAN_S.
     let peak_frame = (of..(of + 3 * lookback).min(n_frames))
-        .max_by(|&a, &b| energy_db[a].total_cmp(&energy_db[b]))
+        .max_by(|&a, &b| envelope_db[a].total_cmp(&envelope_db[b]))
         .unwrap_or(of);
     let limit_sample = further
         .first()
@@ -151,7 +167,7 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
             break;
         }
         let hi = (jj + smooth).min(n_frames);
-        let m = energy_db[jj..hi].iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let m = envelope_db[jj..hi].iter().copied().fold(f64::NEG_INFINITY, f64::max);
         if m < threshold {
             end_sample = (jj * hop + frame).min(limit_sample);
             break;

@@ -69,6 +69,9 @@ pub fn fit_report(file: &Path, m: &Measurement, unit: TensionUnit, picture: Opti
             if r.outlier {
                 note.push("outlier, not fitted".to_string());
             }
+            if r.crowded {
+                note.push("crowded by a neighbouring line, not fitted".to_string());
+            }
             if !r.alternatives.is_empty() {
                 note.push(format!("or {}", r.alternatives.join(", ")));
             }

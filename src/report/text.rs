@@ -128,7 +128,13 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                 r.level_db,
                 r.snr_db,
                 opt(r.t60_s, 3),
-                if r.outlier { "  outlier, not fitted" } else { "" }
+                if r.outlier {
+                    "  outlier, not fitted"
+                } else if r.crowded {
+                    "  crowded, not fitted"
+                } else {
+                    ""
+                }
             );
         }
     }
