@@ -294,6 +294,9 @@ fn score(partials: &[Partial], lines: &[ModeLine], c: f64, assignments: Vec<Assi
         })
         .collect();
     let weight_sum: f64 = in_band.iter().map(|&j| lines[j].coupling).sum();
+    // A hypothesis whose band runs past the last generated line cannot be
+    // scored fairly (its weights would be spread over too few lines).
+    let truncated = lines.last().is_some_and(|l| c * l.factor < ctx.f_high);
     let spurious = SPURIOUS_FRACTION / ctx.band_cents;
     let mut total = 0.0;
     for p in partials {
@@ -358,7 +361,7 @@ fn score(partials: &[Partial], lines: &[ModeLine], c: f64, assignments: Vec<Assi
         assignments,
         unmatched,
         missing,
-        score: total,
+        score: if truncated { f64::NEG_INFINITY } else { total },
         rival: None,
         hypotheses: 0,
     }

@@ -26,7 +26,7 @@ use std::f64::consts::PI;
 /// Relative tolerance under which two modes count as one line.
 pub const DEGENERATE_REL: f64 = 1e-9;
 /// Most lines ever generated.
-pub const MAX_LINES: usize = 800;
+pub const MAX_LINES: usize = 5000;
 
 /// Outline of the membrane.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
