@@ -116,7 +116,7 @@ pub enum Command {
         /// Hum level in dB relative to the tap [default: -20].
         #[arg(long, default_value_t = -20.0, allow_hyphen_values = true)]
         hum_level: f64,
-        /// Extra tone FREQ:LEVEL[:T60], e.g. 333Hz:-20:0.3s (level in dB re the strongest mode); repeatable.
+        /// Extra tone FREQ:LEVEL or FREQ:LEVEL:T60, e.g. 333Hz:-20:0.3s (level in dB re the strongest mode); repeatable.
         #[arg(long = "extra-tone")]
         extra_tone: Vec<String>,
         /// Number of taps [default: 1].
@@ -173,7 +173,7 @@ pub struct PanelArgs {
     /// Film density (with --thickness), e.g. 1390kg/m3.
     #[arg(long)]
     pub density: Option<String>,
-    /// Tap point: x,y fractions (rectangle) or r[,deg] (circle).
+    /// Tap point: x,y fractions (rectangle) or r or r,deg (circle).
     #[arg(long)]
     pub tap_at: Option<String>,
     /// Pickup (microphone) point, same form as --tap-at.
@@ -303,8 +303,14 @@ pub fn synth_config(
     })?;
     let tension = units::parse_tension("--tension", tension)?;
     let tap = p.tap.unwrap_or(match p.shape {
-        crate::membrane::Shape::Rectangle { .. } => Point { u: 0.31, v: Some(0.27) },
-        crate::membrane::Shape::Circle { .. } => Point { u: 0.6, v: Some(0.0) },
+        crate::membrane::Shape::Rectangle { .. } => Point {
+            u: 0.31,
+            v: Some(0.27),
+        },
+        crate::membrane::Shape::Circle { .. } => Point {
+            u: 0.6,
+            v: Some(0.0),
+        },
     });
     let mut cfg = SynthConfig::new(p.shape, density, tension, tap);
     cfg.pickup = p.pickup;

@@ -6,7 +6,7 @@
 //! bad flags), printed on one line.
 
 use crate::error::{Result, TonusError};
-use crate::membrane::{self, Shape};
+use crate::membrane;
 use crate::panel::{Panel, PanelSpec};
 use crate::partials::{self, AnalysisConfig};
 use crate::pipeline::{self, FitOptions, Measurement};
@@ -41,11 +41,20 @@ pub fn exit_for(grade: Grade) -> u8 {
 ///
 /// # Errors
 /// Unreadable or unusable recording.
-pub fn partials(path: &Path, channel: ChannelChoice, cfg: &AnalysisConfig, as_json: bool) -> Result<Outcome> {
+pub fn partials(
+    path: &Path,
+    channel: ChannelChoice,
+    cfg: &AnalysisConfig,
+    as_json: bool,
+) -> Result<Outcome> {
     let rec = recording::read_wav(path, channel)?;
     let a = partials::analyse(&rec, cfg)?;
     let stdout = if as_json {
-        format!("{}\n", serde_json::to_string_pretty(&report::json::partials_record(path, &a)).unwrap_or_default())
+        format!(
+            "{}\n",
+            serde_json::to_string_pretty(&report::json::partials_record(path, &a))
+                .unwrap_or_default()
+        )
     } else {
         report::text::partials_table(path, &a)
     };
@@ -54,6 +63,19 @@ pub fn partials(path: &Path, channel: ChannelChoice, cfg: &AnalysisConfig, as_js
         stderr: String::new(),
         exit: 0,
     })
+}
+
+/// How `fit` presents its result.
+#[derive(Debug, Clone)]
+pub struct OutputOptions {
+    /// Unit for printed tensions.
+    pub unit: TensionUnit,
+    /// One JSON object instead of the table.
+    pub as_json: bool,
+    /// Folder for report, JSON, CSV and PNG.
+    pub out: Option<PathBuf>,
+    /// Draw the PNG.
+    pub picture: bool,
 }
 
 /// `tonus fit`.
@@ -65,15 +87,23 @@ pub fn fit(
     channel: ChannelChoice,
     panel: &Panel,
     opts: &FitOptions,
-    unit: TensionUnit,
-    as_json: bool,
-    out: Option<&Path>,
-    picture: bool,
+    output: &OutputOptions,
 ) -> Result<Outcome> {
+    let OutputOptions {
+        unit,
+        as_json,
+        out,
+        picture,
+    } = output.clone();
+    let out = out.as_deref();
     let rec = recording::read_wav(path, channel)?;
     let m = pipeline::measure(&rec, panel, opts)?;
     let mut stdout = if as_json {
-        format!("{}\n", serde_json::to_string_pretty(&report::json::fit_record(path, &m, unit)).unwrap_or_default())
+        format!(
+            "{}\n",
+            serde_json::to_string_pretty(&report::json::fit_record(path, &m, unit))
+                .unwrap_or_default()
+        )
     } else {
         report::text::fit_table(path, &m, unit)
     };
@@ -82,7 +112,11 @@ pub fn fit(
         if !as_json {
             stdout.push_str(&format!(
                 "written: {}\n",
-                written.iter().map(|p| p.display().to_string()).collect::<Vec<_>>().join(", ")
+                written
+                    .iter()
+                    .map(|p| p.display().to_string())
+                    .collect::<Vec<_>>()
+                    .join(", ")
             ));
         }
     }
@@ -121,11 +155,10 @@ pub fn modes(
             let c = f.0 / g1;
             (c, density.map(|s: KgPerM2| s.0 * c * c))
         }
-        _ => {
-            return Err(TonusError::Panel(
-                "give --tension (for the mode table) or --fundamental (for the tension that gives it)".into(),
-            ))
-        }
+        _ => return Err(TonusError::Panel(
+            "give --tension (for the mode table) or --fundamental (for the tension that gives it)"
+                .into(),
+        )),
     };
     let count = count.clamp(1, 200);
     // Enough lines: grow the factor range until `count` lines are in.
@@ -157,10 +190,17 @@ pub fn modes(
     } else {
         let mut s = format!("{} — wave speed {:.3} m/s", panel.describe(), c);
         match tension_n_per_m {
-            Some(t) => s.push_str(&format!(", tension {} {}\n", units::sig(t / k, 5), unit.symbol())),
+            Some(t) => s.push_str(&format!(
+                ", tension {} {}\n",
+                units::sig(t / k, 5),
+                unit.symbol()
+            )),
             None => s.push_str(" (give --areal-density for the tension)\n"),
         }
-        s.push_str(&format!("{:<16} {:>11} {:>8} {:>9}\n", "mode", "freq [Hz]", "ratio", "coupling"));
+        s.push_str(&format!(
+            "{:<16} {:>11} {:>8} {:>9}\n",
+            "mode", "freq [Hz]", "ratio", "coupling"
+        ));
         for l in &lines {
             s.push_str(&format!(
                 "{:<16} {:>11.2} {:>8.4} {:>9.2}\n",
@@ -221,14 +261,20 @@ pub fn demo(dir: &Path, out: &Path) -> Result<Outcome> {
         .collect();
     wavs.sort();
     if wavs.is_empty() {
-        return Err(TonusError::NoFit(format!("{} holds no .wav files", dir.display())));
+        return Err(TonusError::NoFit(format!(
+            "{} holds no .wav files",
+            dir.display()
+        )));
     }
     let unit = TensionUnit::NewtonPerMeter;
     let mut results: Vec<(String, Option<Measurement>, Option<String>)> = Vec::new();
     let mut stdout = String::new();
     let mut stderr = String::new();
     for wav in &wavs {
-        let name = wav.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        let name = wav
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default();
         let panel_file = wav.with_extension("panel.toml");
         let outcome = (|| -> Result<Measurement> {
             let spec = PanelSpec::from_file(&panel_file)?;
@@ -257,8 +303,10 @@ pub fn demo(dir: &Path, out: &Path) -> Result<Outcome> {
             }
         }
     }
-    let rows: Vec<(String, Option<&Measurement>, Option<String>)> =
-        results.iter().map(|(n, m, e)| (n.clone(), m.as_ref(), e.clone())).collect();
+    let rows: Vec<(String, Option<&Measurement>, Option<String>)> = results
+        .iter()
+        .map(|(n, m, e)| (n.clone(), m.as_ref(), e.clone()))
+        .collect();
     let table = report::csv::summary_csv(&rows).map_err(|e| TonusError::Write {
         path: out.join("summary.csv"),
         reason: e.to_string(),
@@ -266,7 +314,10 @@ pub fn demo(dir: &Path, out: &Path) -> Result<Outcome> {
     report::write_atomic(&out.join("summary.csv"), table.as_bytes())?;
     let mut index = String::from("# Demo reports\n\nWritten by `tonus demo` from the recordings in `demo-recordings/`.\n\n| recording | tension | quality | report |\n|---|---|---|---|\n");
     for (name, m, e) in &results {
-        let stem = Path::new(name).file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_default();
+        let stem = Path::new(name)
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_default();
         match m {
             Some(m) => index.push_str(&format!(
                 "| {name} | {} | {} | [{stem}.report.md]({stem}.report.md) |\n",
@@ -275,20 +326,20 @@ pub fn demo(dir: &Path, out: &Path) -> Result<Outcome> {
                     .unwrap_or_else(|| "–".into()),
                 m.quality.grade.name()
             )),
-            None => index.push_str(&format!("| {name} | – | error: {} | – |\n", e.clone().unwrap_or_default())),
+            None => index.push_str(&format!(
+                "| {name} | – | error: {} | – |\n",
+                e.clone().unwrap_or_default()
+            )),
         }
     }
     index.push_str(&format!("\n{}\n", report::json::CAUTION));
     report::write_atomic(&out.join("README.md"), index.as_bytes())?;
-    let failed = results.iter().any(|(_, m, _)| m.as_ref().is_none_or(|m| exit_for(m.quality.grade) != 0));
+    let failed = results
+        .iter()
+        .any(|(_, m, _)| m.as_ref().is_none_or(|m| exit_for(m.quality.grade) != 0));
     Ok(Outcome {
         stdout,
         stderr,
         exit: if failed { 1 } else { 0 },
     })
-}
-
-/// Shape check used by `fit --free-aspect` callers.
-pub fn is_rectangle(p: &Panel) -> bool {
-    matches!(p.shape, Shape::Rectangle { .. })
 }

@@ -14,7 +14,9 @@ pub enum TonusError {
     Io { path: PathBuf, reason: String },
 
     /// The file is not a WAV file tonus can decode.
-    #[error("{path} is not a readable WAV file ({reason}); export the recording as PCM or float WAV")]
+    #[error(
+        "{path} is not a readable WAV file ({reason}); export the recording as PCM or float WAV"
+    )]
     NotWav { path: PathBuf, reason: String },
 
     /// The WAV header parsed but the contents cannot be analysed.

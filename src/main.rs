@@ -10,9 +10,11 @@ use tonus::error::Result;
 
 fn run(cli: Cli) -> Result<Outcome> {
     match cli.command {
-        Command::Partials { recording, input, json } => {
-            commands::partials(&recording, input.channel()?, &input.analysis()?, json)
-        }
+        Command::Partials {
+            recording,
+            input,
+            json,
+        } => commands::partials(&recording, input.channel()?, &input.analysis()?, json),
         Command::Fit {
             recording,
             panel,
@@ -27,10 +29,12 @@ fn run(cli: Cli) -> Result<Outcome> {
             input.channel()?,
             &panel.to_panel()?,
             &cli::fit_options(free_aspect, &input)?,
-            cli::tension_unit(&tension_unit)?,
-            json,
-            out.as_deref(),
-            !no_picture,
+            &commands::OutputOptions {
+                unit: cli::tension_unit(&tension_unit)?,
+                as_json: json,
+                out,
+                picture: !no_picture,
+            },
         ),
         Command::Modes {
             panel,

@@ -106,7 +106,11 @@ fn cents(f: f64, pred: f64) -> f64 {
 
 /// Matches partials (any order) to lines (sorted by factor).
 /// Returns None with fewer than one partial or no line.
-pub fn match_modes(partials: &[Partial], lines: &[ModeLine], band_hz: (f64, f64)) -> Option<Matching> {
+pub fn match_modes(
+    partials: &[Partial],
+    lines: &[ModeLine],
+    band_hz: (f64, f64),
+) -> Option<Matching> {
     if partials.is_empty() || lines.is_empty() {
         return None;
     }
@@ -114,7 +118,11 @@ pub fn match_modes(partials: &[Partial], lines: &[ModeLine], band_hz: (f64, f64)
     let mut by_level: Vec<usize> = (0..partials.len()).collect();
     by_level.sort_by(|&a, &b| partials[b].level_db.total_cmp(&partials[a].level_db));
     let mut by_freq: Vec<usize> = (0..partials.len()).collect();
-    by_freq.sort_by(|&a, &b| partials[a].frequency_hz.total_cmp(&partials[b].frequency_hz));
+    by_freq.sort_by(|&a, &b| {
+        partials[a]
+            .frequency_hz
+            .total_cmp(&partials[b].frequency_hz)
+    });
     let mut anchors: Vec<usize> = by_level.iter().take(ANCHOR_PARTIALS).copied().collect();
     for &i in by_freq.iter().take(ANCHOR_PARTIALS) {
         if !anchors.contains(&i) {
@@ -132,7 +140,10 @@ pub fn match_modes(partials: &[Partial], lines: &[ModeLine], band_hz: (f64, f64)
         spacing: &spacing,
         band_cents,
         f_low: band_hz.0.max(1.0),
-        f_high: by_freq.last().map(|&i| partials[i].frequency_hz * 1.02).unwrap_or(band_hz.1),
+        f_high: by_freq
+            .last()
+            .map(|&i| partials[i].frequency_hz * 1.02)
+            .unwrap_or(band_hz.1),
     };
     let mut results: Vec<Matching> = Vec::new();
     for c0 in seeds {
@@ -208,12 +219,21 @@ struct ScoreContext<'a> {
 /// neighbours, or the interval to the one neighbour at an end, capped at
 /// the band.
 fn line_spacing_cents(lines: &[ModeLine], band_cents: f64) -> Vec<f64> {
-    let live: Vec<usize> = (0..lines.len()).filter(|&j| lines[j].coupling >= WEAK_COUPLING).collect();
+    let live: Vec<usize> = (0..lines.len())
+        .filter(|&j| lines[j].coupling >= WEAK_COUPLING)
+        .collect();
     (0..lines.len())
         .map(|j| {
             let g = lines[j].factor;
-            let prev = live.iter().rev().map(|&i| lines[i].factor).find(|&f| f < g * (1.0 - 1e-9));
-            let next = live.iter().map(|&i| lines[i].factor).find(|&f| f > g * (1.0 + 1e-9));
+            let prev = live
+                .iter()
+                .rev()
+                .map(|&i| lines[i].factor)
+                .find(|&f| f < g * (1.0 - 1e-9));
+            let next = live
+                .iter()
+                .map(|&i| lines[i].factor)
+                .find(|&f| f > g * (1.0 + 1e-9));
             let d = match (prev, next) {
                 (Some(p), Some(n)) => 0.5 * cents(n, p),
                 (Some(p), None) => cents(g, p),
@@ -234,8 +254,13 @@ fn assign(partials: &[Partial], lines: &[ModeLine], c: f64) -> Vec<Assignment> {
         let g = p.frequency_hz / c;
         let k = lines.partition_point(|l| l.factor < g);
         let mut best: Option<(usize, f64)> = None;
-        for j in k.saturating_sub(1)..(k + 1).min(lines.len()) {
-            let r = cents(p.frequency_hz, c * lines[j].factor);
+        for (j, line) in lines
+            .iter()
+            .enumerate()
+            .take((k + 1).min(lines.len()))
+            .skip(k.saturating_sub(1))
+        {
+            let r = cents(p.frequency_hz, c * line.factor);
             if best.is_none_or(|(_, br)| r.abs() < br.abs()) {
                 best = Some((j, r));
             }
@@ -252,12 +277,16 @@ fn assign(partials: &[Partial], lines: &[ModeLine], c: f64) -> Vec<Assignment> {
             if r.abs() <= gate {
                 let mut alternatives = Vec::new();
                 let mut lo = j;
-                while lo > 0 && cents(p.frequency_hz, c * lines[lo - 1].factor).abs() < MATCH_SCATTER_CENTS {
+                while lo > 0
+                    && cents(p.frequency_hz, c * lines[lo - 1].factor).abs() < MATCH_SCATTER_CENTS
+                {
                     lo -= 1;
                     alternatives.push(lo);
                 }
                 let mut hi = j + 1;
-                while hi < lines.len() && cents(p.frequency_hz, c * lines[hi].factor).abs() < MATCH_SCATTER_CENTS {
+                while hi < lines.len()
+                    && cents(p.frequency_hz, c * lines[hi].factor).abs() < MATCH_SCATTER_CENTS
+                {
                     alternatives.push(hi);
                     hi += 1;
                 }
@@ -279,11 +308,21 @@ fn assign(partials: &[Partial], lines: &[ModeLine], c: f64) -> Vec<Assignment> {
             out.push(a);
         }
     }
-    out.sort_by(|a, b| partials[a.partial].frequency_hz.total_cmp(&partials[b.partial].frequency_hz));
+    out.sort_by(|a, b| {
+        partials[a.partial]
+            .frequency_hz
+            .total_cmp(&partials[b.partial].frequency_hz)
+    });
     out
 }
 
-fn score(partials: &[Partial], lines: &[ModeLine], c: f64, assignments: Vec<Assignment>, ctx: &ScoreContext) -> Matching {
+fn score(
+    partials: &[Partial],
+    lines: &[ModeLine],
+    c: f64,
+    assignments: Vec<Assignment>,
+    ctx: &ScoreContext,
+) -> Matching {
     let s = MATCH_SCATTER_CENTS;
     let norm = s * (2.0 * std::f64::consts::PI).sqrt();
     // Lines in the band and their prior weights.
@@ -316,7 +355,8 @@ fn score(partials: &[Partial], lines: &[ModeLine], c: f64, assignments: Vec<Assi
                 }
                 let f = c * lines[j].factor;
                 if f >= ctx.f_low && f <= ctx.f_high {
-                    mode_density += lines[j].coupling / weight_sum * (-r * r / (2.0 * s * s)).exp() / norm;
+                    mode_density +=
+                        lines[j].coupling / weight_sum * (-r * r / (2.0 * s * s)).exp() / norm;
                 }
                 j += 1;
             }
@@ -392,11 +432,17 @@ mod tests {
             height: Meters(0.3),
         };
         let c = 98.0;
-        let tap = Point { u: 0.5, v: Some(0.31) };
+        let tap = Point {
+            u: 0.5,
+            v: Some(0.31),
+        };
         let lines = shape.lines(3000.0 / c, Some(tap), None);
         // Every line with coupling except the even-m family (tap at x/Lx =
         // 0.5), plus two spurious peaks.
-        let truth: Vec<usize> = (0..lines.len()).filter(|&j| lines[j].coupling > 0.2).take(12).collect();
+        let truth: Vec<usize> = (0..lines.len())
+            .filter(|&j| lines[j].coupling > 0.2)
+            .take(12)
+            .collect();
         let mut ps: Vec<Partial> = truth
             .iter()
             .map(|&j| partial(lines[j].factor * c * (1.0 + 0.0004), -20.0))
@@ -404,7 +450,11 @@ mod tests {
         ps.push(partial(333.0, -25.0));
         ps.push(partial(1234.0, -35.0));
         let m = match_modes(&ps, &lines, (20.0, 3000.0)).unwrap();
-        assert!((m.wave_speed_m_per_s / c - 1.0004).abs() < 1e-3, "{}", m.wave_speed_m_per_s);
+        assert!(
+            (m.wave_speed_m_per_s / c - 1.0004).abs() < 1e-3,
+            "{}",
+            m.wave_speed_m_per_s
+        );
         // Each true partial on its own line. Lines are dense at 1.2 kHz
         // (about 15 cents apart), so a spurious peak there may also find a
         // line; the fit's outlier test deals with it.
@@ -418,7 +468,9 @@ mod tests {
 
     #[test]
     fn circle_without_fundamental() {
-        let shape = Shape::Circle { radius: Meters(0.178) };
+        let shape = Shape::Circle {
+            radius: Meters(0.178),
+        };
         let c = 120.0;
         let lines = shape.lines(4000.0 / c, None, None);
         let ps: Vec<Partial> = lines

@@ -84,7 +84,13 @@ impl ModeLine {
 /// Frequency of rectangle mode (m,n), Hz:
 /// f = (c/2)·√((m/Lx)² + (n/Ly)²), with c the wave speed (m/s) and Lx, Ly
 /// the width and height (m).
-pub fn rect_mode_frequency_hz(width_m: f64, height_m: f64, wave_speed_m_per_s: f64, m: u32, n: u32) -> f64 {
+pub fn rect_mode_frequency_hz(
+    width_m: f64,
+    height_m: f64,
+    wave_speed_m_per_s: f64,
+    m: u32,
+    n: u32,
+) -> f64 {
     0.5 * wave_speed_m_per_s * ((m as f64 / width_m).powi(2) + (n as f64 / height_m).powi(2)).sqrt()
 }
 
@@ -108,7 +114,9 @@ impl Shape {
     /// Frequency factor of the lowest mode.
     pub fn fundamental_factor(&self) -> f64 {
         match *self {
-            Shape::Rectangle { width, height } => rect_mode_frequency_hz(width.0, height.0, 1.0, 1, 1),
+            Shape::Rectangle { width, height } => {
+                rect_mode_frequency_hz(width.0, height.0, 1.0, 1, 1)
+            }
             Shape::Circle { radius } => circle_mode_frequency_hz(radius.0, 1.0, 0, 1),
         }
     }
@@ -139,7 +147,12 @@ impl Shape {
     /// Predicted lines with factor up to `max_factor` (1/m), sorted by
     /// frequency, with degenerate modes merged and the expected coupling
     /// at the tap and pickup points.
-    pub fn lines(&self, max_factor: f64, tap: Option<Point>, pickup: Option<Point>) -> Vec<ModeLine> {
+    pub fn lines(
+        &self,
+        max_factor: f64,
+        tap: Option<Point>,
+        pickup: Option<Point>,
+    ) -> Vec<ModeLine> {
         let mut modes: Vec<(f64, u32, u32, usize)> = Vec::new();
         match *self {
             Shape::Rectangle { width, height } => {
@@ -262,7 +275,9 @@ mod tests {
     fn circle_ratios_are_bessel_zero_ratios() {
         // f(1,1)/f(0,1) = 3.8317/2.4048 = 1.5933; f(2,1)/f(0,1) = 2.1355
         // (Fletcher & Rossing, Table 3.2 lists 1.59, 2.14, 2.30, ...).
-        let c = Shape::Circle { radius: Meters(0.178) };
+        let c = Shape::Circle {
+            radius: Meters(0.178),
+        };
         let lines = c.lines(30.0, None, None);
         let f1 = lines[0].factor;
         assert_eq!(lines[0].labels, vec![(0, 1)]);
@@ -280,7 +295,10 @@ mod tests {
         // Tapping the centre of a rectangle: every mode with an even index
         // has a nodal line through it.
         let r = rect(0.4, 0.3);
-        let centre = Point { u: 0.5, v: Some(0.5) };
+        let centre = Point {
+            u: 0.5,
+            v: Some(0.5),
+        };
         let lines = r.lines(10.0, Some(centre), None);
         for l in &lines {
             let (m, n) = l.labels[0];
@@ -291,7 +309,9 @@ mod tests {
             }
         }
         // Tapping a circle at its centre excites only m = 0.
-        let c = Shape::Circle { radius: Meters(0.2) };
+        let c = Shape::Circle {
+            radius: Meters(0.2),
+        };
         for l in c.lines(20.0, Some(Point { u: 0.0, v: None }), None) {
             if l.labels[0].0 > 0 {
                 assert!(l.coupling < 1e-9);

@@ -71,10 +71,12 @@ impl PanelSpec {
             path: path.to_path_buf(),
             reason: e.to_string(),
         })?;
-        let table: toml::Table = text.parse().map_err(|e: toml::de::Error| TonusError::ConfigFile {
-            path: path.to_path_buf(),
-            reason: format!("not valid TOML: {}", e.message()),
-        })?;
+        let table: toml::Table =
+            text.parse()
+                .map_err(|e: toml::de::Error| TonusError::ConfigFile {
+                    path: path.to_path_buf(),
+                    reason: format!("not valid TOML: {}", e.message()),
+                })?;
         let mut spec = PanelSpec::default();
         for (key, value) in &table {
             let text = match value {
@@ -82,7 +84,9 @@ impl PanelSpec {
                 other => {
                     return Err(TonusError::ConfigFile {
                         path: path.to_path_buf(),
-                        reason: format!("key '{key}' must be a string with its unit, e.g. \"400mm\"; found {other}"),
+                        reason: format!(
+                        "key '{key}' must be a string with its unit, e.g. \"400mm\"; found {other}"
+                    ),
                     })
                 }
             };
@@ -158,10 +162,14 @@ impl Panel {
                     (Some(d), None) => Meters(units::parse_length("--diameter", d)?.0 / 2.0),
                     (None, Some(r)) => units::parse_length("--radius", r)?,
                     (Some(_), Some(_)) => {
-                        return Err(TonusError::Panel("give --diameter or --radius, not both".into()))
+                        return Err(TonusError::Panel(
+                            "give --diameter or --radius, not both".into(),
+                        ))
                     }
                     (None, None) => {
-                        return Err(TonusError::Panel("a circle needs --diameter (e.g. --diameter 14in)".into()))
+                        return Err(TonusError::Panel(
+                            "a circle needs --diameter (e.g. --diameter 14in)".into(),
+                        ))
                     }
                 };
                 Shape::Circle { radius }
@@ -192,10 +200,22 @@ impl Panel {
                     "give --areal-density or --thickness with --density, not both".into(),
                 ))
             }
-            (None, Some(_), None) => return Err(TonusError::Panel("--thickness needs --density (e.g. --density 1390kg/m3)".into())),
-            (None, None, Some(_)) => return Err(TonusError::Panel("--density needs --thickness (e.g. --thickness 0.19mm)".into())),
+            (None, Some(_), None) => {
+                return Err(TonusError::Panel(
+                    "--thickness needs --density (e.g. --density 1390kg/m3)".into(),
+                ))
+            }
+            (None, None, Some(_)) => {
+                return Err(TonusError::Panel(
+                    "--density needs --thickness (e.g. --thickness 0.19mm)".into(),
+                ))
+            }
         };
-        let tap = spec.tap_at.as_deref().map(|t| parse_point("--tap-at", t, &shape)).transpose()?;
+        let tap = spec
+            .tap_at
+            .as_deref()
+            .map(|t| parse_point("--tap-at", t, &shape))
+            .transpose()?;
         let pickup = spec
             .pickup_at
             .as_deref()
@@ -250,7 +270,9 @@ pub fn parse_point(key: &str, text: &str, shape: &Shape) -> Result<Point> {
         }
         Shape::Circle { .. } => {
             if nums.is_empty() || nums.len() > 2 || !(0.0..=1.0).contains(&nums[0]) {
-                return Err(bad("a fraction of the radius 0..1, optionally an angle in degrees"));
+                return Err(bad(
+                    "a fraction of the radius 0..1, optionally an angle in degrees",
+                ));
             }
             Ok(Point {
                 u: nums[0],
@@ -283,19 +305,28 @@ mod tests {
             width: Some("400mm".into()),
             ..Default::default()
         };
-        assert!(Panel::from_spec(&spec).unwrap_err().to_string().contains("--height"));
+        assert!(Panel::from_spec(&spec)
+            .unwrap_err()
+            .to_string()
+            .contains("--height"));
         let spec = PanelSpec {
             width: Some("-400mm".into()),
             height: Some("300mm".into()),
             ..Default::default()
         };
-        assert!(Panel::from_spec(&spec).unwrap_err().to_string().contains("--width"));
+        assert!(Panel::from_spec(&spec)
+            .unwrap_err()
+            .to_string()
+            .contains("--width"));
         let spec = PanelSpec {
             width: Some("400mm".into()),
             height: Some("300mm".into()),
             areal_density: Some("0kg/m2".into()),
             ..Default::default()
         };
-        assert!(Panel::from_spec(&spec).unwrap_err().to_string().contains("--areal-density"));
+        assert!(Panel::from_spec(&spec)
+            .unwrap_err()
+            .to_string()
+            .contains("--areal-density"));
     }
 }

@@ -17,11 +17,11 @@ use serde::Serialize;
 /// Default minimum SNR of a partial, dB.
 pub const DEFAULT_MIN_SNR_DB: f64 = 10.0;
 /// Default minimum topographic prominence of a partial, dB.
-pub const DEFAULT_MIN_PROMINENCE_DB: f64 = 6.0;
+pub const DEFAULT_MIN_PROMINENCE_DB: f64 = 3.0;
 /// Peaks more than this far below the strongest are dropped, dB: the
-/// analysis window's flat start leaves skirt ripple about 80 dB down, and
+/// analysis window leaves sidelobe ripple from about 65 dB down, and
 /// no mode that weak carries weight in a fit.
-pub const DYNAMIC_RANGE_DB: f64 = 70.0;
+pub const DYNAMIC_RANGE_DB: f64 = 60.0;
 /// Default lowest frequency searched, Hz.
 pub const DEFAULT_MIN_FREQUENCY_HZ: f64 = 20.0;
 /// Default largest number of partials kept (the strongest).
@@ -208,7 +208,11 @@ pub const STEADY_LEVEL_DB: f64 = 6.0;
 /// The mains family a steady partial belongs to, if any. Steady means
 /// present in the background before the tap at nearly its level, or, with
 /// no background to compare, not decaying.
-fn hum_family(p: &Partial, mains: &[f64], background: Option<&spectrum::Background>) -> Option<(f64, u32)> {
+fn hum_family(
+    p: &Partial,
+    mains: &[f64],
+    background: Option<&spectrum::Background>,
+) -> Option<(f64, u32)> {
     let sustained = match (background, p.decay_rate_db_per_s) {
         (Some(b), _) => b.level_near(p.frequency_hz) >= p.level_db - STEADY_LEVEL_DB,
         (None, Some(r)) => r < SUSTAINED_DECAY_DB_PER_S,
@@ -219,7 +223,10 @@ fn hum_family(p: &Partial, mains: &[f64], background: Option<&spectrum::Backgrou
     }
     for &m in mains {
         let k = (p.frequency_hz / m).round();
-        if k >= 1.0 && k <= HUM_MAX_HARMONIC as f64 && (p.frequency_hz / k - m).abs() < HUM_TOLERANCE_HZ {
+        if k >= 1.0
+            && k <= HUM_MAX_HARMONIC as f64
+            && (p.frequency_hz / k - m).abs() < HUM_TOLERANCE_HZ
+        {
             return Some((m, k as u32));
         }
     }
@@ -386,7 +393,10 @@ fn measure_decays(
         // The quietest frame stands for the noise at this frequency (or,
         // for a partial that outlasts the span, its last level); the fit
         // keeps to frames 8 dB above it and within 50 dB of the peak.
-        let db: Vec<f64> = levels[p].iter().map(|&x| 10.0 * (x + 1e-300).log10()).collect();
+        let db: Vec<f64> = levels[p]
+            .iter()
+            .map(|&x| 10.0 * (x + 1e-300).log10())
+            .collect();
         let start = (0..db.len())
             .max_by(|&a, &b| db[a].total_cmp(&db[b]))
             .unwrap_or(0);
@@ -442,7 +452,9 @@ mod tests {
         let mut state = 7u64;
         (0..n)
             .map(|i| {
-                state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+                state = state
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
                 let noise = ((state >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 2e-4;
                 if i < pre {
                     return noise;
@@ -452,7 +464,8 @@ mod tests {
                     + parts
                         .iter()
                         .map(|&(f, a, t60)| {
-                            a * (-t * 3.0 * std::f64::consts::LN_10 / t60).exp() * (2.0 * PI * f * t).sin()
+                            a * (-t * 3.0 * std::f64::consts::LN_10 / t60).exp()
+                                * (2.0 * PI * f * t).sin()
                         })
                         .sum::<f64>()
             })
@@ -471,7 +484,12 @@ mod tests {
             // Tolerances: 0.1 Hz (a quarter of a cent at 400 Hz) allows for
             // the skirt of a stronger neighbour pulling a fast-decaying peak;
             // 10 % on T60 allows for the frame-level fit near the noise.
-            assert!((p.frequency_hz - f).abs() < 0.1, "{} vs {}", p.frequency_hz, f);
+            assert!(
+                (p.frequency_hz - f).abs() < 0.1,
+                "{} vs {}",
+                p.frequency_hz,
+                f
+            );
             let t = p.t60_s.unwrap();
             assert!((t / t60 - 1.0).abs() < 0.1, "T60 {t} vs {t60}");
         }
@@ -492,7 +510,10 @@ mod tests {
         let hum: Vec<f64> = a.hum.iter().map(|h| h.partial.frequency_hz).collect();
         assert!(hum.iter().any(|f| (f - 50.02).abs() < 0.2), "{hum:?}");
         assert!(hum.iter().any(|f| (f - 150.06).abs() < 0.3), "{hum:?}");
-        assert!(a.partials.iter().any(|p| (p.frequency_hz - 100.0).abs() < 0.1));
+        assert!(a
+            .partials
+            .iter()
+            .any(|p| (p.frequency_hz - 100.0).abs() < 0.1));
         assert!(!hum.iter().any(|f| (f - 100.0).abs() < 1.0));
     }
 }

@@ -133,12 +133,14 @@ pub fn measure_with(
     let analysis = partials::analyse_with(rec, &opts.analysis, planner)?;
     let mut warnings = analysis.warnings.clone();
     let parts = &analysis.partials;
-    let (f_lo, f_hi) = parts
-        .iter()
-        .fold((f64::INFINITY, 0.0f64), |(lo, hi), p| (lo.min(p.frequency_hz), hi.max(p.frequency_hz)));
+    let (f_lo, f_hi) = parts.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), p| {
+        (lo.min(p.frequency_hz), hi.max(p.frequency_hz))
+    });
     // Lines far enough up that the lowest partial may be any of the first
     // few lines: g_max = g(ANCHOR_LINES-th line) · f_hi/f_lo.
-    let probe = panel.shape.lines(panel.shape.fundamental_factor() * 6.0, None, None);
+    let probe = panel
+        .shape
+        .lines(panel.shape.fundamental_factor() * 6.0, None, None);
     let g_anchor = probe
         .get(matching::ANCHOR_LINES.min(probe.len()) - 1)
         .map(|l| l.factor)
@@ -150,7 +152,11 @@ pub fn measure_with(
             .shape
             .lines(g_anchor * (f_hi / f_lo) * 1.05, panel.tap, panel.pickup)
     };
-    let matching = matching::match_modes(parts, &lines, (opts.analysis.min_frequency_hz, f_hi.max(1.0)));
+    let matching = matching::match_modes(
+        parts,
+        &lines,
+        (opts.analysis.min_frequency_hz, f_hi.max(1.0)),
+    );
     let mut fit_result = None;
     let mut modes = Vec::new();
     let mut missing = Vec::new();
@@ -206,7 +212,9 @@ pub fn measure_with(
                 .map(|o| {
                     let pred = match (ly, panel.shape) {
                         (Some(ly), Shape::Rectangle { width, .. }) => {
-                            crate::membrane::rect_mode_frequency_hz(width.0, ly, c, o.mode.0, o.mode.1)
+                            crate::membrane::rect_mode_frequency_hz(
+                                width.0, ly, c, o.mode.0, o.mode.1,
+                            )
                         }
                         _ => c * o.factor,
                     };
@@ -223,9 +231,15 @@ pub fn measure_with(
                 let line = &lines[a.line];
                 let p = &parts[a.partial];
                 let predicted = match (height, panel.shape) {
-                    (Some(ly), Shape::Rectangle { width, .. }) => crate::membrane::rect_mode_frequency_hz(
-                        width.0, ly, c, line.labels[0].0, line.labels[0].1,
-                    ),
+                    (Some(ly), Shape::Rectangle { width, .. }) => {
+                        crate::membrane::rect_mode_frequency_hz(
+                            width.0,
+                            ly,
+                            c,
+                            line.labels[0].0,
+                            line.labels[0].1,
+                        )
+                    }
                     _ => c * line.factor,
                 };
                 modes.push(ModeRow {
@@ -240,10 +254,18 @@ pub fn measure_with(
                     t60_s: p.t60_s,
                     outlier: f.outliers.contains(&i),
                     crowded: f.left_out_crowded.contains(&i),
-                    alternatives: a.alternatives.iter().map(|&j| lines[j].label_text()).collect(),
+                    alternatives: a
+                        .alternatives
+                        .iter()
+                        .map(|&j| lines[j].label_text())
+                        .collect(),
                 });
             }
-            let third = modes.get(2).or(modes.last()).map(|r| r.measured_hz).unwrap_or(0.0);
+            let third = modes
+                .get(2)
+                .or(modes.last())
+                .map(|r| r.measured_hz)
+                .unwrap_or(0.0);
             for &j in &m.missing {
                 let predicted = c * lines[j].factor;
                 missing.push(MissingMode {
@@ -304,7 +326,13 @@ pub fn measure_with(
             warnings.push(Warning::LowSnr { median_snr_db: snr });
         }
     }
-    let q = quality::grade(fit_result.as_ref(), matching.as_ref(), &modes, &warnings, rec.clipped_fraction);
+    let q = quality::grade(
+        fit_result.as_ref(),
+        matching.as_ref(),
+        &modes,
+        &warnings,
+        rec.clipped_fraction,
+    );
     Ok(Measurement {
         panel: panel.clone(),
         analysis,

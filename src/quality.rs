@@ -106,7 +106,10 @@ pub fn grade(
     } else if f.rms_residual_cents > FAIR_RMS_CENTS {
         worse(
             Grade::Fair,
-            format!("rms residual {:.1} cents (over {FAIR_RMS_CENTS})", f.rms_residual_cents),
+            format!(
+                "rms residual {:.1} cents (over {FAIR_RMS_CENTS})",
+                f.rms_residual_cents
+            ),
             &mut g,
         );
     }
@@ -137,9 +140,11 @@ pub fn grade(
                 format!("low SNR: median {median_snr_db:.1} dB"),
                 &mut g,
             ),
-            Warning::SystematicResidual { detail } => {
-                worse(Grade::Fair, format!("systematic residuals: {detail}"), &mut g)
-            }
+            Warning::SystematicResidual { detail } => worse(
+                Grade::Fair,
+                format!("systematic residuals: {detail}"),
+                &mut g,
+            ),
             Warning::NoOnset => worse(Grade::Fair, "no tap onset found".into(), &mut g),
             _ => {}
         }
@@ -149,7 +154,10 @@ pub fn grade(
     if outliers * 5 > fitted.max(1) {
         worse(
             Grade::Fair,
-            format!("{outliers} of {} matched partials left out as outliers", modes.len()),
+            format!(
+                "{outliers} of {} matched partials left out as outliers",
+                modes.len()
+            ),
             &mut g,
         );
     }
@@ -176,10 +184,14 @@ pub fn systematic_trend(modes: &[ModeRow], fit: &FitResult) -> Option<Warning> {
         return None;
     }
     let b = pts.iter().map(|p| (p.0 - mx) * (p.1 - my)).sum::<f64>() / sxx;
-    let resid: f64 = pts.iter().map(|p| (p.1 - my - b * (p.0 - mx)).powi(2)).sum();
+    let resid: f64 = pts
+        .iter()
+        .map(|p| (p.1 - my - b * (p.0 - mx)).powi(2))
+        .sum();
     let s2 = resid / (n - 2.0);
     let se = (s2 / sxx).sqrt().max(1e-9);
-    let span = pts.iter().map(|p| p.0).fold(f64::MIN, f64::max) - pts.iter().map(|p| p.0).fold(f64::MAX, f64::min);
+    let span = pts.iter().map(|p| p.0).fold(f64::MIN, f64::max)
+        - pts.iter().map(|p| p.0).fold(f64::MAX, f64::min);
     let _ = fit;
     if (b / se).abs() > 4.0 && (b * span).abs() > TREND_CENTS {
         let dir = if b > 0.0 {
@@ -188,7 +200,10 @@ pub fn systematic_trend(modes: &[ModeRow], fit: &FitResult) -> Option<Warning> {
             "higher modes sit flat of the ideal membrane"
         };
         Some(Warning::SystematicResidual {
-            detail: format!("{:+.1} cents per octave; {dir}; calibrate or use a fuller model", b),
+            detail: format!(
+                "{:+.1} cents per octave; {dir}; calibrate or use a fuller model",
+                b
+            ),
         })
     } else {
         None

@@ -227,7 +227,7 @@ fn remove_dc(samples: &mut [f64]) -> f64 {
 /// equal 16-bit samples for 20 Hz at 48 kHz) does not count.
 fn count_flat_tops(samples: &[f64]) -> usize {
     let peak = samples.iter().fold(0.0f64, |m, x| m.max(x.abs()));
-    if peak < 0.25 || peak >= 0.999 {
+    if !(0.25..0.999).contains(&peak) {
         return 0;
     }
     // Identical to the peak: stuck samples are bit-identical.
@@ -392,7 +392,10 @@ fn decode_with_hound(path: &Path, bytes: &[u8], header: &Header) -> Result<(Vec<
 fn decode_f64(path: &Path, bytes: &[u8], header: &Header) -> Result<(Vec<f64>, Vec<bool>)> {
     let align = header.block_align as usize;
     if align != 8 * header.channels as usize {
-        return Err(not_wav(path, "64-bit float with an inconsistent block size"));
+        return Err(not_wav(
+            path,
+            "64-bit float with an inconsistent block size",
+        ));
     }
     let data = &bytes[header.data_offset..header.data_offset + header.data_len];
     let n = data.len() / 8;
@@ -426,7 +429,13 @@ fn decode_f64(path: &Path, bytes: &[u8], header: &Header) -> Result<(Vec<f64>, V
 ///
 /// The file is written to a temporary name and renamed, so a failure never
 /// leaves a half-written recording.
-pub fn write_wav(path: &Path, samples: &[f64], sample_rate_hz: u32, bits: u16, float: bool) -> Result<()> {
+pub fn write_wav(
+    path: &Path,
+    samples: &[f64],
+    sample_rate_hz: u32,
+    bits: u16,
+    float: bool,
+) -> Result<()> {
     let spec = hound::WavSpec {
         channels: 1,
         sample_rate: sample_rate_hz,

@@ -90,7 +90,8 @@ pub fn window(n: usize) -> Vec<f64> {
             let from_end = n - 1 - i;
             if from_end < fade_out {
                 w *= 0.5
-                    - 0.5 * (std::f64::consts::PI * (from_end as f64 + 0.5) / fade_out as f64).cos();
+                    - 0.5
+                        * (std::f64::consts::PI * (from_end as f64 + 0.5) / fade_out as f64).cos();
             }
             w
         })
@@ -144,10 +145,15 @@ pub fn compute(
             let floor = (0..power.len())
                 .map(|k| interpolate(&b.grid_hz, &b.density, k as f64 * bin_hz) * window_sq_sum)
                 .collect();
-            let seconds = noise.map(|s| s.len() as f64 / sample_rate_hz).unwrap_or(0.0);
+            let seconds = noise
+                .map(|s| s.len() as f64 / sample_rate_hz)
+                .unwrap_or(0.0);
             (floor, FloorSource::Background { seconds })
         }
-        None => (noise_floor(&power, bin_hz, ZERO_PAD_FACTOR), FloorSource::SpanQuantile),
+        None => (
+            noise_floor(&power, bin_hz, ZERO_PAD_FACTOR),
+            FloorSource::SpanQuantile,
+        ),
     };
     let norm = 4.0 / (window_sum * window_sum);
     let level_db = power
@@ -196,7 +202,11 @@ pub const MIN_NOISE_SAMPLES: usize = 512;
 /// over its mean is (1 − 1/(9K))³ by the Wilson–Hilferty approximation
 /// (E. B. Wilson and M. M. Hilferty, PNAS 17, 1931), which corrects the
 /// median to a mean. Returns (frequency grid Hz, variance per sample).
-pub fn noise_density(seg: &[f64], sample_rate_hz: f64, planner: &mut RealFftPlanner<f64>) -> Option<Background> {
+pub fn noise_density(
+    seg: &[f64],
+    sample_rate_hz: f64,
+    planner: &mut RealFftPlanner<f64>,
+) -> Option<Background> {
     if seg.len() < MIN_NOISE_SAMPLES {
         return None;
     }
@@ -241,7 +251,9 @@ pub fn noise_density(seg: &[f64], sample_rate_hz: f64, planner: &mut RealFftPlan
     // (1 − 2/(9k) + z·√(2/(9k)))³ with z = −0.674 (the normal quartile).
     let quartile = running_quantile(&density, bin_hz, 1, 0.25, 6);
     let k = 2.0 * k_eff;
-    let ratio = (1.0 - 2.0 / (9.0 * k) - 0.674_49 * (2.0 / (9.0 * k)).sqrt()).powi(3).max(0.05);
+    let ratio = (1.0 - 2.0 / (9.0 * k) - 0.674_49 * (2.0 / (9.0 * k)).sqrt())
+        .powi(3)
+        .max(0.05);
     let grid: Vec<f64> = (0..density.len()).map(|k| k as f64 * bin_hz).collect();
     let hann_sum: f64 = hann.iter().sum();
     let line_level_db = acc
@@ -305,7 +317,13 @@ pub fn noise_floor(power: &[f64], bin_hz: f64, stride: usize) -> Vec<f64> {
 
 /// The `q`-quantile of `power` over ±1/6 octave (at least `min_half_bins`
 /// either side), at 24 points per octave, interpolated in log between.
-pub fn running_quantile(power: &[f64], bin_hz: f64, stride: usize, q: f64, min_half_bins: usize) -> Vec<f64> {
+pub fn running_quantile(
+    power: &[f64],
+    bin_hz: f64,
+    stride: usize,
+    q: f64,
+    min_half_bins: usize,
+) -> Vec<f64> {
     let nb = power.len();
     let stride = stride.max(1);
     let mut centres: Vec<usize> = Vec::new();
@@ -384,7 +402,9 @@ mod tests {
         let mut planner = RealFftPlanner::new();
         let s = compute(&x, None, sr, &mut planner);
         let k = s.bin_of(1000.0);
-        let peak = (k - 3..=k + 3).map(|j| s.level_db[j]).fold(f64::MIN, f64::max);
+        let peak = (k - 3..=k + 3)
+            .map(|j| s.level_db[j])
+            .fold(f64::MIN, f64::max);
         // 20·log10(0.5) = −6.02 dB; 0.05 dB covers the grid offset.
         assert!((peak + 6.0206).abs() < 0.05, "{peak}");
     }
@@ -395,7 +415,9 @@ mod tests {
         let mut state = 99u64;
         let x: Vec<f64> = (0..32768)
             .map(|_| {
-                state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+                state = state
+                    .wrapping_mul(6364136223846793005)
+                    .wrapping_add(1442695040888963407);
                 (state >> 11) as f64 / (1u64 << 53) as f64 - 0.5
             })
             .collect();
@@ -412,7 +434,12 @@ mod tests {
         let s2 = compute(&x[..16384], Some(&x[16384..]), 48000.0, &mut planner);
         let expect2 = s2.window_sq_sum / 12.0;
         let mid2 = s2.floor_power[s2.power.len() / 2];
-        assert!((mid2 / expect2 - 1.0).abs() < 0.1, "{} vs {}", mid2, expect2);
+        assert!(
+            (mid2 / expect2 - 1.0).abs() < 0.1,
+            "{} vs {}",
+            mid2,
+            expect2
+        );
         assert!(matches!(s2.floor_source, FloorSource::Background { .. }));
     }
 }

@@ -183,13 +183,29 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
         why: why.into(),
     };
     if !(8000..=192_000).contains(&cfg.sample_rate_hz) {
-        return Err(bad("--rate", cfg.sample_rate_hz.to_string(), "choose 8000 to 192000 Hz"));
+        return Err(bad(
+            "--rate",
+            cfg.sample_rate_hz.to_string(),
+            "choose 8000 to 192000 Hz",
+        ));
     }
     if !(cfg.duration_s > 0.0 && cfg.duration_s <= 60.0) {
-        return Err(bad("--length", format!("{} s", cfg.duration_s), "choose 0 to 60 s"));
+        return Err(bad(
+            "--length",
+            format!("{} s", cfg.duration_s),
+            "choose 0 to 60 s",
+        ));
     }
-    if !(0.0..=1.0).contains(&cfg.tap.u) || cfg.tap.v.is_some_and(|v| matches!(cfg.shape, Shape::Rectangle { .. }) && !(0.0..=1.0).contains(&v)) {
-        return Err(bad("--tap-at", format!("{:?}", cfg.tap), "coordinates are fractions 0..1 of the size"));
+    if !(0.0..=1.0).contains(&cfg.tap.u)
+        || cfg.tap.v.is_some_and(|v| {
+            matches!(cfg.shape, Shape::Rectangle { .. }) && !(0.0..=1.0).contains(&v)
+        })
+    {
+        return Err(bad(
+            "--tap-at",
+            format!("{:?}", cfg.tap),
+            "coordinates are fractions 0..1 of the size",
+        ));
     }
     let sr = cfg.sample_rate_hz as f64;
     let n = (cfg.duration_s * sr).round() as usize;
@@ -207,7 +223,14 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
                 Shape::Circle { .. } if m > 0 => {
                     // cos and sin members: φ_c(t)φ_c(p) + φ_s(t)φ_s(p) =
                     // R(t)R(p)·cos(m(θt − θp)).
-                    let rt = cfg.shape.mode_shape(m, nn, Point { u: cfg.tap.u, v: None });
+                    let rt = cfg.shape.mode_shape(
+                        m,
+                        nn,
+                        Point {
+                            u: cfg.tap.u,
+                            v: None,
+                        },
+                    );
                     let rp = cfg
                         .pickup
                         .map(|p| cfg.shape.mode_shape(m, nn, Point { u: p.u, v: None }))
@@ -220,7 +243,10 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
                 }
                 _ => {
                     let t = cfg.shape.mode_shape(m, nn, cfg.tap);
-                    let p = cfg.pickup.map(|p| cfg.shape.mode_shape(m, nn, p)).unwrap_or(1.0);
+                    let p = cfg
+                        .pickup
+                        .map(|p| cfg.shape.mode_shape(m, nn, p))
+                        .unwrap_or(1.0);
                     t * p
                 }
             };
@@ -240,7 +266,11 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
         } else {
             0.0
         };
-        comps.push((t.frequency_hz, strongest * 10f64.powf(t.level_db / 20.0), rate));
+        comps.push((
+            t.frequency_hz,
+            strongest * 10f64.powf(t.level_db / 20.0),
+            rate,
+        ));
     }
     let mut x = vec![0.0; n];
     let onsets: Vec<usize> = (0..cfg.taps.max(1))
@@ -284,7 +314,9 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
     let rms = (x[o..o + win].iter().map(|v| v * v).sum::<f64>() / win as f64).sqrt();
     let noise_rms = rms * 10f64.powf(-cfg.snr_db / 20.0);
     let mut rng = Rng::new(cfg.seed);
-    let hum = cfg.hum.map(|(mains, level)| (mains, rms * 10f64.powf(level / 20.0)));
+    let hum = cfg
+        .hum
+        .map(|(mains, level)| (mains, rms * 10f64.powf(level / 20.0)));
     let hum_phase = rng.uniform() * 2.0 * PI;
     let gain = 10f64.powf(cfg.gain_db / 20.0);
     for (i, v) in x.iter_mut().enumerate() {
@@ -329,7 +361,10 @@ mod tests {
             },
             KgPerM2(0.26),
             NewtonsPerMeter(2500.0),
-            Point { u: 0.31, v: Some(0.27) },
+            Point {
+                u: 0.31,
+                v: Some(0.27),
+            },
         );
         let a = synthesise(&cfg).unwrap();
         let b = synthesise(&cfg).unwrap();

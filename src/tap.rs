@@ -87,7 +87,10 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
     let tenth = |v: &[f64]| {
         let mut sorted = v.to_vec();
         sorted.sort_by(f64::total_cmp);
-        (sorted[sorted.len() / 10], *sorted.last().unwrap_or(&sorted[0]))
+        (
+            sorted[sorted.len() / 10],
+            *sorted.last().unwrap_or(&sorted[0]),
+        )
     };
     // The quietest tenth of the file is taken as background: the pre-roll
     // and the end of the decay.
@@ -101,11 +104,15 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
         let recent_min = if j == 0 {
             background_onset_db
         } else {
-            energy_db[lo..j].iter().copied().fold(f64::INFINITY, f64::min)
+            energy_db[lo..j]
+                .iter()
+                .copied()
+                .fold(f64::INFINITY, f64::min)
         };
         let rise = energy_db[j] - recent_min.min(energy_db[j]);
         if energy_db[j] > background_onset_db + ONSET_ABOVE_FLOOR_DB
-            && (rise > ONSET_RISE_DB || j == 0 && energy_db[j] > background_onset_db + ONSET_RISE_DB)
+            && (rise > ONSET_RISE_DB
+                || j == 0 && energy_db[j] > background_onset_db + ONSET_RISE_DB)
         {
             onset_frame = Some(j);
             break;
@@ -167,7 +174,10 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
             break;
         }
         let hi = (jj + smooth).min(n_frames);
-        let m = envelope_db[jj..hi].iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        let m = envelope_db[jj..hi]
+            .iter()
+            .copied()
+            .fold(f64::NEG_INFINITY, f64::max);
         if m < threshold {
             end_sample = (jj * hop + frame).min(limit_sample);
             break;
@@ -216,7 +226,9 @@ mod tests {
         // A fixed-seed pseudo-random background at -70 dB.
         let mut state = 12345u64;
         for v in x.iter_mut() {
-            state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            state = state
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
             *v = ((state >> 33) as f64 / (1u64 << 31) as f64 - 0.5) * 1e-3;
         }
         for &t0 in std::iter::once(&onset_s).chain(taps) {

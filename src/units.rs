@@ -146,7 +146,6 @@ fn normalise(s: &str) -> String {
         .replace(['²', '^'], "")
         .replace('³', "3")
         .replace(' ', "")
-        .replace("m2", "m2")
 }
 
 /// Splits `"400mm"` into `(400.0, "mm")`.
@@ -238,8 +237,8 @@ pub fn parse_density(key: &str, text: &str) -> Result<KgPerM3> {
 pub fn parse_tension(key: &str, text: &str) -> Result<NewtonsPerMeter> {
     let expected = "a tension with unit (N/m, N/cm, kN/m, lbf/in)";
     let (v, unit) = split_number(key, text, expected, "2500N/m")?;
-    let u = TensionUnit::parse(key, &unit)
-        .map_err(|_| unit_error(key, text, expected, "2500N/m"))?;
+    let u =
+        TensionUnit::parse(key, &unit).map_err(|_| unit_error(key, text, expected, "2500N/m"))?;
     Ok(NewtonsPerMeter(require_positive(
         key,
         text,

@@ -42,7 +42,9 @@ pub fn modes_csv(m: &Measurement) -> Result<String, csv::Error> {
 /// One summary row per recording: file, tension (N/m) and its standard
 /// uncertainty, wave speed (m/s) and its standard uncertainty, modes used,
 /// rms residual (cents), quality grade, error (for a file that failed).
-pub fn summary_csv(rows: &[(String, Option<&Measurement>, Option<String>)]) -> Result<String, csv::Error> {
+pub fn summary_csv(
+    rows: &[(String, Option<&Measurement>, Option<String>)],
+) -> Result<String, csv::Error> {
     let mut w = csv::Writer::from_writer(Vec::new());
     w.write_record([
         "file",
@@ -61,12 +63,17 @@ pub fn summary_csv(rows: &[(String, Option<&Measurement>, Option<String>)]) -> R
         w.write_record([
             file.clone(),
             t.map(|t| format!("{:.3}", t.value)).unwrap_or_default(),
-            t.map(|t| format!("{:.3}", t.standard_uncertainty)).unwrap_or_default(),
-            f.map(|f| format!("{:.4}", f.wave_speed.value)).unwrap_or_default(),
-            f.map(|f| format!("{:.4}", f.wave_speed.standard_uncertainty)).unwrap_or_default(),
+            t.map(|t| format!("{:.3}", t.standard_uncertainty))
+                .unwrap_or_default(),
+            f.map(|f| format!("{:.4}", f.wave_speed.value))
+                .unwrap_or_default(),
+            f.map(|f| format!("{:.4}", f.wave_speed.standard_uncertainty))
+                .unwrap_or_default(),
             f.map(|f| f.n_used.to_string()).unwrap_or_default(),
-            f.map(|f| format!("{:.3}", f.rms_residual_cents)).unwrap_or_default(),
-            m.map(|m| m.quality.grade.name().to_string()).unwrap_or_default(),
+            f.map(|f| format!("{:.3}", f.rms_residual_cents))
+                .unwrap_or_default(),
+            m.map(|m| m.quality.grade.name().to_string())
+                .unwrap_or_default(),
             err.clone().unwrap_or_default(),
         ])?;
     }

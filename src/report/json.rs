@@ -110,10 +110,19 @@ pub fn fit_record(file: &Path, m: &Measurement, unit: TensionUnit) -> Value {
     if let Value::Object(o) = &mut panel {
         o.insert(
             "areal_density_kg_per_m2".into(),
-            m.panel.areal_density.map(|s| json!(s.0)).unwrap_or(Value::Null),
+            m.panel
+                .areal_density
+                .map(|s| json!(s.0))
+                .unwrap_or(Value::Null),
         );
-        o.insert("tap_at".into(), serde_json::to_value(m.panel.tap).unwrap_or(Value::Null));
-        o.insert("pickup_at".into(), serde_json::to_value(m.panel.pickup).unwrap_or(Value::Null));
+        o.insert(
+            "tap_at".into(),
+            serde_json::to_value(m.panel.tap).unwrap_or(Value::Null),
+        );
+        o.insert(
+            "pickup_at".into(),
+            serde_json::to_value(m.panel.pickup).unwrap_or(Value::Null),
+        );
     }
     let fit = m.fit.as_ref();
     json!({

@@ -8,12 +8,26 @@ use std::fmt::Write;
 use std::path::Path;
 
 /// The report text; `picture` is the spectrum PNG's file name, if drawn.
-pub fn fit_report(file: &Path, m: &Measurement, unit: TensionUnit, picture: Option<&str>) -> String {
+pub fn fit_report(
+    file: &Path,
+    m: &Measurement,
+    unit: TensionUnit,
+    picture: Option<&str>,
+) -> String {
     let mut s = String::new();
-    let name = file.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let name = file
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
     let _ = writeln!(s, "# Tension record: {name}\n");
     let _ = writeln!(s, "| item | value |\n|---|---|");
-    let _ = writeln!(s, "| recording | `{}` ({:.2} s at {:.0} Hz) |", file.display(), m.duration_s, m.analysis.sample_rate_hz);
+    let _ = writeln!(
+        s,
+        "| recording | `{}` ({:.2} s at {:.0} Hz) |",
+        file.display(),
+        m.duration_s,
+        m.analysis.sample_rate_hz
+    );
     let _ = writeln!(s, "| membrane | {} |", m.panel.describe());
     match m.panel.areal_density {
         Some(d) => {
@@ -31,22 +45,45 @@ pub fn fit_report(file: &Path, m: &Measurement, unit: TensionUnit, picture: Opti
         if m.analysis.tap.further_taps_s.is_empty() {
             String::new()
         } else {
-            format!(", {} further tap(s) not analysed", m.analysis.tap.further_taps_s.len())
+            format!(
+                ", {} further tap(s) not analysed",
+                m.analysis.tap.further_taps_s.len()
+            )
         }
     );
     if let Some(t) = m.tension {
         let k = unit.newtons_per_meter();
-        let _ = writeln!(s, "| **tension** | **{}** (standard uncertainty, k = 1) |", pm(t.value / k, t.standard_uncertainty / k, unit.symbol()));
+        let _ = writeln!(
+            s,
+            "| **tension** | **{}** (standard uncertainty, k = 1) |",
+            pm(t.value / k, t.standard_uncertainty / k, unit.symbol())
+        );
     }
     if let Some(t) = m.tension_over_density {
-        let _ = writeln!(s, "| T/σ | {} |", pm(t.value, t.standard_uncertainty, "m²/s²"));
+        let _ = writeln!(
+            s,
+            "| T/σ | {} |",
+            pm(t.value, t.standard_uncertainty, "m²/s²")
+        );
     }
     if let Some(f) = &m.fit {
-        let _ = writeln!(s, "| wave speed | {} |", pm(f.wave_speed.value, f.wave_speed.standard_uncertainty, "m/s"));
+        let _ = writeln!(
+            s,
+            "| wave speed | {} |",
+            pm(f.wave_speed.value, f.wave_speed.standard_uncertainty, "m/s")
+        );
         if let Some(h) = f.effective_height_m {
-            let _ = writeln!(s, "| effective height | {} |", pm(h.value * 1e3, h.standard_uncertainty * 1e3, "mm"));
+            let _ = writeln!(
+                s,
+                "| effective height | {} |",
+                pm(h.value * 1e3, h.standard_uncertainty * 1e3, "mm")
+            );
         }
-        let _ = writeln!(s, "| rms residual | {:.2} cents over {} modes |", f.rms_residual_cents, f.n_used);
+        let _ = writeln!(
+            s,
+            "| rms residual | {:.2} cents over {} modes |",
+            f.rms_residual_cents, f.n_used
+        );
     }
     let _ = writeln!(
         s,
@@ -84,7 +121,9 @@ pub fn fit_report(file: &Path, m: &Measurement, unit: TensionUnit, picture: Opti
                 r.residual_cents,
                 r.level_db,
                 r.snr_db,
-                r.t60_s.map(|t| format!("{t:.3}")).unwrap_or_else(|| "–".into()),
+                r.t60_s
+                    .map(|t| format!("{t:.3}"))
+                    .unwrap_or_else(|| "–".into()),
                 note.join("; ")
             );
         }
@@ -98,20 +137,33 @@ pub fn fit_report(file: &Path, m: &Measurement, unit: TensionUnit, picture: Opti
             .take(20)
             .map(|x| format!("{} at {:.1} Hz", x.labels, x.predicted_hz))
             .collect();
-        let _ = writeln!(s, "{}{}\n", list.join(", "), if m.missing.len() > 20 { ", …" } else { "" });
+        let _ = writeln!(
+            s,
+            "{}{}\n",
+            list.join(", "),
+            if m.missing.len() > 20 { ", …" } else { "" }
+        );
     }
     if !m.unmatched.is_empty() {
         let _ = writeln!(s, "## Partials not explained by the model\n");
         for &i in &m.unmatched {
             let p = &m.analysis.partials[i];
-            let _ = writeln!(s, "- {:.2} Hz, {:.1} dB, SNR {:.1} dB", p.frequency_hz, p.level_db, p.snr_db);
+            let _ = writeln!(
+                s,
+                "- {:.2} Hz, {:.1} dB, SNR {:.1} dB",
+                p.frequency_hz, p.level_db, p.snr_db
+            );
         }
         let _ = writeln!(s);
     }
     if !m.analysis.hum.is_empty() {
         let _ = writeln!(s, "## Mains hum set aside\n");
         for h in &m.analysis.hum {
-            let _ = writeln!(s, "- {:.2} Hz ({} × {:.0} Hz)", h.partial.frequency_hz, h.harmonic, h.mains_hz);
+            let _ = writeln!(
+                s,
+                "- {:.2} Hz ({} × {:.0} Hz)",
+                h.partial.frequency_hz, h.harmonic, h.mains_hz
+            );
         }
         let _ = writeln!(s);
     }

@@ -53,7 +53,9 @@ pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::Sp
         .iter()
         .map(|p| p.frequency_hz)
         .fold(0.0, f64::max);
-    let max_f = (top_partial * 1.1).max(200.0).min(spec.bin_hz * (spec.power.len() - 1) as f64);
+    let max_f = (top_partial * 1.1)
+        .max(200.0)
+        .min(spec.bin_hz * (spec.power.len() - 1) as f64);
     let n = ((max_f / spec.bin_hz) as usize + 1).min(spec.power.len());
     let freqs_hz: Vec<f64> = (0..n).map(|k| k as f64 * spec.bin_hz).collect();
     let level_db = spec.level_db[..n].to_vec();
@@ -92,7 +94,13 @@ pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::Sp
             lines.push(png::PlotLine {
                 frequency_hz: match (f.effective_height_m, m.panel.shape) {
                     (Some(ly), crate::membrane::Shape::Rectangle { width, .. }) => {
-                        crate::membrane::rect_mode_frequency_hz(width.0, ly.value, c, l.labels[0].0, l.labels[0].1)
+                        crate::membrane::rect_mode_frequency_hz(
+                            width.0,
+                            ly.value,
+                            c,
+                            l.labels[0].0,
+                            l.labels[0].1,
+                        )
                     }
                     _ => fr,
                 },
@@ -103,11 +111,18 @@ pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::Sp
             });
         }
     }
-    let name = file.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let name = file
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
     let subtitle = match (m.tension, &m.fit) {
         (Some(t), Some(f)) => format!(
             "T = {} · rms residual {:.1} cents · {} modes · quality: {}",
-            text::pm(t.value / unit.newtons_per_meter(), t.standard_uncertainty / unit.newtons_per_meter(), unit.symbol()),
+            text::pm(
+                t.value / unit.newtons_per_meter(),
+                t.standard_uncertainty / unit.newtons_per_meter(),
+                unit.symbol()
+            ),
             f.rms_residual_cents,
             f.n_used,
             m.quality.grade.name()
@@ -129,7 +144,12 @@ pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::Sp
         floor_db,
         partials,
         lines,
-        hum_hz: m.analysis.hum.iter().map(|h| h.partial.frequency_hz).collect(),
+        hum_hz: m
+            .analysis
+            .hum
+            .iter()
+            .map(|h| h.partial.frequency_hz)
+            .collect(),
         max_frequency_hz: max_f,
     }
 }
@@ -140,7 +160,13 @@ pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::Sp
 ///
 /// # Errors
 /// When the directory cannot be created or a file cannot be written.
-pub fn write_fit_outputs(dir: &Path, file: &Path, m: &Measurement, unit: TensionUnit, picture: bool) -> Result<Vec<PathBuf>> {
+pub fn write_fit_outputs(
+    dir: &Path,
+    file: &Path,
+    m: &Measurement,
+    unit: TensionUnit,
+    picture: bool,
+) -> Result<Vec<PathBuf>> {
     std::fs::create_dir_all(dir).map_err(|e| TonusError::Write {
         path: dir.to_path_buf(),
         reason: e.to_string(),

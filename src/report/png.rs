@@ -16,10 +16,10 @@
 //!   registered under the family name [`FONT_FAMILY`]; no system font is
 //!   looked up, so the picture is the same on every machine.
 //!
-//! The picture is drawn into memory and encoded by the small PNG writer in
-//! `encode`, then written to `NAME.part` and renamed into place. The PNG
-//! writer is ours because the bitmap backend picks the image format from the
-//! file extension, and the temporary name ends in `.part`.
+//! The picture is drawn into memory, encoded with the `png` crate into
+//! `NAME.part` and renamed into place. The bitmap backend's own file output
+//! is not used because it picks the image format from the file extension,
+//! and the temporary name ends in `.part`.
 
 use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
@@ -160,21 +160,36 @@ pub fn write_png(path: &Path, plot: &SpectrumPlot) -> Result<(), TonusError> {
     };
     validate(plot).map_err(fail)?;
     let rgb = render_rgb(plot).map_err(fail)?;
-    let png = encode::png_rgb8(WIDTH_PX, HEIGHT_PX, &rgb).map_err(fail)?;
 
     let tmp: PathBuf = crate::report::temp_path(path);
-    let written = std::fs::write(&tmp, &png)
-        .map_err(|e| format!("writing {}: {e}", tmp.display()))
-        .and_then(|()| {
-            std::fs::rename(&tmp, path)
-                .map_err(|e| format!("renaming {} into place: {e}", tmp.display()))
-        });
+    let written = encode_png(&tmp, &rgb).and_then(|()| {
+        std::fs::rename(&tmp, path)
+            .map_err(|e| format!("renaming {} into place: {e}", tmp.display()))
+    });
     if let Err(reason) = written {
         // Best effort: the temporary file may not exist if the write failed early.
         let _ = std::fs::remove_file(&tmp);
         return Err(fail(reason));
     }
     Ok(())
+}
+
+/// Writes `rgb` (row-major, 3 bytes a pixel, [`WIDTH_PX`]×[`HEIGHT_PX`]) to
+/// `file` as an 8-bit RGB PNG.
+fn encode_png(file: &Path, rgb: &[u8]) -> Result<(), String> {
+    use std::io::Write as _;
+
+    let io_err = |e: std::io::Error| format!("writing {}: {e}", file.display());
+    let png_err = |e: ::png::EncodingError| format!("encoding {} as PNG: {e}", file.display());
+    let mut out = std::io::BufWriter::new(std::fs::File::create(file).map_err(io_err)?);
+    let mut encoder = ::png::Encoder::new(&mut out, WIDTH_PX, HEIGHT_PX);
+    encoder.set_color(::png::ColorType::Rgb);
+    encoder.set_depth(::png::BitDepth::Eight);
+    let mut writer = encoder.write_header().map_err(png_err)?;
+    writer.write_image_data(rgb).map_err(png_err)?;
+    // `finish` writes IEND and reports its errors, which dropping would swallow.
+    writer.finish().map_err(png_err)?;
+    out.flush().map_err(io_err)
 }
 
 /// Checks what the drawing code relies on, with a message naming the field.
@@ -794,225 +809,6 @@ fn draw_residual_panel(area: &Area<'_>, plot: &SpectrumPlot) -> Result<(), Strin
     Ok(())
 }
 
-/// A minimal PNG writer: 8-bit RGB, no interlace, one IDAT chunk.
-///
-/// Each row gets the PNG filter (None, Sub or Up) with the smallest sum of
-/// absolute signed bytes, the usual heuristic (PNG spec, section 12.8). The
-/// filtered rows are compressed as one fixed-Huffman deflate block (RFC 1951,
-/// section 3.2.6) whose only back-references are runs of a repeated byte
-/// (distance 1). Plots are mostly flat colour, which filters to long runs of
-/// zeros, so this simple scheme gives files of a few hundred kilobytes.
-mod encode {
-    /// PNG signature (PNG spec, section 5.2).
-    const SIGNATURE: [u8; 8] = [0x89, b'P', b'N', b'G', 0x0D, 0x0A, 0x1A, 0x0A];
-
-    /// Base length of each deflate length code 257..=285 (RFC 1951, 3.2.5).
-    const LENGTH_BASE: [u16; 29] = [
-        3, 4, 5, 6, 7, 8, 9, 10, 11, 13, 15, 17, 19, 23, 27, 31, 35, 43, 51, 59, 67, 83, 99, 115,
-        131, 163, 195, 227, 258,
-    ];
-    /// Extra bits of each deflate length code 257..=285 (RFC 1951, 3.2.5).
-    const LENGTH_EXTRA: [u8; 29] = [
-        0, 0, 0, 0, 0, 0, 0, 0, 1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3, 4, 4, 4, 4, 5, 5, 5, 5, 0,
-    ];
-    /// Shortest and longest deflate match (RFC 1951, 3.2.5).
-    const MIN_MATCH: usize = 3;
-    const MAX_MATCH: usize = 258;
-
-    /// Encodes `rgb` (row-major, 3 bytes a pixel) as a PNG file.
-    pub fn png_rgb8(width: u32, height: u32, rgb: &[u8]) -> Result<Vec<u8>, String> {
-        let expected = width as usize * height as usize * 3;
-        if rgb.len() != expected || width == 0 || height == 0 {
-            return Err(format!(
-                "image buffer holds {} bytes; expected {expected} for {width}×{height} RGB",
-                rgb.len()
-            ));
-        }
-        let filtered = filter_rows(rgb, width as usize * 3);
-        let mut ihdr = Vec::with_capacity(13);
-        ihdr.extend_from_slice(&width.to_be_bytes());
-        ihdr.extend_from_slice(&height.to_be_bytes());
-        // Bit depth 8, colour type 2 (RGB), deflate, adaptive filtering, no interlace.
-        ihdr.extend_from_slice(&[8, 2, 0, 0, 0]);
-        let mut out = Vec::with_capacity(filtered.len() / 8 + 64);
-        out.extend_from_slice(&SIGNATURE);
-        chunk(&mut out, b"IHDR", &ihdr);
-        chunk(&mut out, b"IDAT", &zlib(&filtered));
-        chunk(&mut out, b"IEND", &[]);
-        Ok(out)
-    }
-
-    /// Appends one chunk: length, type, data, CRC of type and data (PNG spec, 5.3).
-    fn chunk(out: &mut Vec<u8>, kind: &[u8; 4], data: &[u8]) {
-        out.extend_from_slice(&(data.len() as u32).to_be_bytes());
-        let start = out.len();
-        out.extend_from_slice(kind);
-        out.extend_from_slice(data);
-        let crc = crc32(&out[start..]);
-        out.extend_from_slice(&crc.to_be_bytes());
-    }
-
-    /// Filters each row (PNG spec, section 9), prefixing its filter type byte.
-    pub(super) fn filter_rows(rgb: &[u8], stride: usize) -> Vec<u8> {
-        const BPP: usize = 3;
-        let zero_row = vec![0u8; stride];
-        let mut out = Vec::with_capacity(rgb.len() + rgb.len() / stride);
-        let mut candidates: [Vec<u8>; 3] = [vec![0; stride], vec![0; stride], vec![0; stride]];
-        for (i, row) in rgb.chunks_exact(stride).enumerate() {
-            let prev = if i == 0 {
-                &zero_row[..]
-            } else {
-                &rgb[(i - 1) * stride..i * stride]
-            };
-            for x in 0..stride {
-                let left = if x >= BPP { row[x - BPP] } else { 0 };
-                candidates[0][x] = row[x];
-                candidates[1][x] = row[x].wrapping_sub(left);
-                candidates[2][x] = row[x].wrapping_sub(prev[x]);
-            }
-            let cost = |c: &Vec<u8>| {
-                c.iter()
-                    .map(|&b| u64::from((b as i8).unsigned_abs()))
-                    .sum::<u64>()
-            };
-            let best = (0..3).min_by_key(|&k| cost(&candidates[k])).unwrap_or(0);
-            out.push(best as u8);
-            out.extend_from_slice(&candidates[best]);
-        }
-        out
-    }
-
-    /// Wraps a deflate stream in the zlib format (RFC 1950): header, data, Adler-32.
-    pub(super) fn zlib(data: &[u8]) -> Vec<u8> {
-        // CMF 0x78: deflate, 32 KiB window; FLG 0x01 makes CMF·256+FLG a multiple of 31.
-        let mut out = vec![0x78, 0x01];
-        out.extend_from_slice(&deflate_fixed(data));
-        out.extend_from_slice(&adler32(data).to_be_bytes());
-        out
-    }
-
-    /// Deflate bit writer: bits are packed from the least significant end.
-    struct Bits {
-        out: Vec<u8>,
-        acc: u64,
-        count: u32,
-    }
-
-    impl Bits {
-        fn put(&mut self, value: u32, n: u32) {
-            self.acc |= u64::from(value) << self.count;
-            self.count += n;
-            while self.count >= 8 {
-                self.out.push(self.acc as u8);
-                self.acc >>= 8;
-                self.count -= 8;
-            }
-        }
-
-        /// Huffman codes are sent most significant bit first (RFC 1951, 3.1.1).
-        fn put_code(&mut self, code: u32, n: u32) {
-            self.put(code.reverse_bits() >> (32 - n), n);
-        }
-
-        /// Literal/length symbol in the fixed code (RFC 1951, 3.2.6).
-        fn put_symbol(&mut self, sym: u32) {
-            match sym {
-                0..=143 => self.put_code(0x30 + sym, 8),
-                144..=255 => self.put_code(0x190 + sym - 144, 9),
-                256..=279 => self.put_code(sym - 256, 7),
-                _ => self.put_code(0xC0 + sym - 280, 8),
-            }
-        }
-
-        fn finish(mut self) -> Vec<u8> {
-            if self.count > 0 {
-                self.out.push(self.acc as u8);
-            }
-            self.out
-        }
-    }
-
-    /// One final fixed-Huffman block; runs of a repeated byte become
-    /// distance-1 matches, everything else literals.
-    pub(super) fn deflate_fixed(data: &[u8]) -> Vec<u8> {
-        let mut bits = Bits {
-            out: Vec::with_capacity(data.len() / 8 + 16),
-            acc: 0,
-            count: 0,
-        };
-        bits.put(1, 1); // BFINAL
-        bits.put(1, 2); // BTYPE = 01, fixed Huffman codes
-        let mut i = 0;
-        while i < data.len() {
-            let run = if i == 0 {
-                0
-            } else {
-                let prev = data[i - 1];
-                data[i..]
-                    .iter()
-                    .take(MAX_MATCH)
-                    .take_while(|&&b| b == prev)
-                    .count()
-            };
-            if run >= MIN_MATCH {
-                let code = LENGTH_BASE
-                    .iter()
-                    .rposition(|&b| usize::from(b) <= run)
-                    .unwrap_or(0);
-                bits.put_symbol(257 + code as u32);
-                let extra = u32::from(LENGTH_EXTRA[code]);
-                if extra > 0 {
-                    bits.put((run - usize::from(LENGTH_BASE[code])) as u32, extra);
-                }
-                bits.put_code(0, 5); // distance code 0: distance 1
-                i += run;
-            } else {
-                bits.put_symbol(u32::from(data[i]));
-                i += 1;
-            }
-        }
-        bits.put_symbol(256); // end of block
-        bits.finish()
-    }
-
-    /// CRC-32 as used by PNG (ISO 3309 polynomial, reflected, PNG spec annex D).
-    pub(super) fn crc32(data: &[u8]) -> u32 {
-        let mut table = [0u32; 256];
-        for (n, entry) in table.iter_mut().enumerate() {
-            let mut c = n as u32;
-            for _ in 0..8 {
-                c = if c & 1 != 0 {
-                    0xEDB8_8320 ^ (c >> 1)
-                } else {
-                    c >> 1
-                };
-            }
-            *entry = c;
-        }
-        let mut crc = 0xFFFF_FFFFu32;
-        for &b in data {
-            crc = table[((crc ^ u32::from(b)) & 0xFF) as usize] ^ (crc >> 8);
-        }
-        crc ^ 0xFFFF_FFFF
-    }
-
-    /// Adler-32 checksum (RFC 1950, section 8).
-    pub(super) fn adler32(data: &[u8]) -> u32 {
-        const MOD: u32 = 65_521;
-        // 5552 bytes is the longest run that cannot overflow u32 before the modulo (zlib's NMAX).
-        let (mut a, mut b) = (1u32, 0u32);
-        for block in data.chunks(5552) {
-            for &x in block {
-                a += u32::from(x);
-                b += a;
-            }
-            a %= MOD;
-            b %= MOD;
-        }
-        (b << 16) | a
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1120,17 +916,22 @@ mod tests {
         }
     }
 
-    /// Width and height from the IHDR chunk, which must come first (PNG spec, 5.6).
+    /// Checks the PNG signature (PNG spec, 5.2), then returns width and
+    /// height from the IHDR chunk as read by the `png` decoder, after
+    /// checking it is 8-bit RGB.
     fn png_size(bytes: &[u8]) -> (u32, u32) {
-        assert!(bytes.len() > 33, "file too short for a PNG header");
+        assert!(bytes.len() > 8, "file too short for a PNG signature");
         assert_eq!(
             &bytes[..8],
             &[0x89, b'P', b'N', b'G', 0x0D, 0x0A, 0x1A, 0x0A]
         );
-        assert_eq!(&bytes[12..16], b"IHDR");
-        let w = u32::from_be_bytes([bytes[16], bytes[17], bytes[18], bytes[19]]);
-        let h = u32::from_be_bytes([bytes[20], bytes[21], bytes[22], bytes[23]]);
-        (w, h)
+        let reader = ::png::Decoder::new(bytes)
+            .read_info()
+            .expect("PNG header decodes");
+        let info = reader.info();
+        assert_eq!(info.color_type, ::png::ColorType::Rgb);
+        assert_eq!(info.bit_depth, ::png::BitDepth::Eight);
+        (info.width, info.height)
     }
 
     #[test]
@@ -1270,141 +1071,5 @@ mod tests {
         );
         // 17 cents · 1.15 = 19.55, rounded up to 20.
         assert_eq!(residual_range(&[line(-17.0)]), 20.0);
-    }
-
-    #[test]
-    fn crc32_and_adler32_match_published_check_values() {
-        // CRC-32 check value for "123456789" (Rocksoft catalogue, CRC-32/ISO-HDLC).
-        assert_eq!(encode::crc32(b"123456789"), 0xCBF4_3926);
-        // Adler-32 of "Wikipedia", the worked example in RFC 1950's usual references.
-        assert_eq!(encode::adler32(b"Wikipedia"), 0x11E6_0398);
-    }
-
-    /// Decoder for what `deflate_fixed` writes (one fixed-Huffman block),
-    /// written straight from RFC 1951 as an independent check.
-    fn inflate_fixed(data: &[u8]) -> Vec<u8> {
-        let mut pos = 0usize; // bit position
-        let bit = |pos: &mut usize| -> u32 {
-            let b = (data[*pos / 8] >> (*pos % 8)) & 1;
-            *pos += 1;
-            u32::from(b)
-        };
-        let bits =
-            |pos: &mut usize, n: u32| -> u32 { (0..n).fold(0, |acc, i| acc | (bit(pos) << i)) };
-        assert_eq!(bits(&mut pos, 1), 1, "BFINAL");
-        assert_eq!(bits(&mut pos, 2), 1, "BTYPE fixed");
-        let mut out: Vec<u8> = Vec::new();
-        loop {
-            let mut code = 0u32;
-            for _ in 0..7 {
-                code = (code << 1) | bits(&mut pos, 1);
-            }
-            let sym = if code <= 0b001_0111 {
-                256 + code
-            } else {
-                code = (code << 1) | bits(&mut pos, 1);
-                match code {
-                    0x30..=0xBF => code - 0x30,
-                    0xC0..=0xC7 => 280 + code - 0xC0,
-                    _ => {
-                        code = (code << 1) | bits(&mut pos, 1);
-                        144 + code - 0x190
-                    }
-                }
-            };
-            match sym {
-                0..=255 => out.push(sym as u8),
-                256 => break,
-                _ => {
-                    let k = (sym - 257) as usize;
-                    let len = usize::from(encode_tables::BASE[k])
-                        + bits(&mut pos, u32::from(encode_tables::EXTRA[k])) as usize;
-                    let mut dcode = 0u32;
-                    for _ in 0..5 {
-                        dcode = (dcode << 1) | bits(&mut pos, 1);
-                    }
-                    assert_eq!(dcode, 0, "only distance 1 is written");
-                    for _ in 0..len {
-                        let last = *out.last().expect("match after a literal");
-                        out.push(last);
-                    }
-                }
-            }
-        }
-        out
-    }
-
-    /// Length tables copied from RFC 1951, section 3.2.5, for the decoder.
-    mod encode_tables {
-        pub const BASE: [u16; 29] = [
-            3, 4, 5, 6, 7, 8, 9, 10, 11, 13, 15, 17, 19, 23, 27, 31, 35, 43, 51, 59, 67, 83, 99,
-            115, 131, 163, 195, 227, 258,
-        ];
-        pub const EXTRA: [u8; 29] = [
-            0, 0, 0, 0, 0, 0, 0, 0, 1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3, 4, 4, 4, 4, 5, 5, 5, 5, 0,
-        ];
-    }
-
-    #[test]
-    fn deflate_round_trips_runs_and_literals() {
-        let mut rng = Lcg(11);
-        let mut data = vec![0u8; 1000];
-        data.extend((0..3000).map(|_| (rng.uniform() * 256.0) as u8));
-        // Runs of every length around the length-code boundaries.
-        for len in [1, 2, 3, 4, 10, 11, 12, 257, 258, 259, 600] {
-            data.extend(std::iter::repeat_n(len as u8, len));
-        }
-        assert_eq!(inflate_fixed(&encode::deflate_fixed(&data)), data);
-        assert_eq!(inflate_fixed(&encode::deflate_fixed(&[])), Vec::<u8>::new());
-    }
-
-    #[test]
-    fn png_pixels_round_trip_through_filters() {
-        // A 7×5 image with flat, gradient and noisy rows.
-        let (w, h) = (7usize, 5usize);
-        let mut rng = Lcg(3);
-        let rgb: Vec<u8> = (0..w * h * 3)
-            .map(|i| match i / (w * 3) {
-                0 => 255,
-                1 => (i * 9) as u8,
-                _ => (rng.uniform() * 256.0) as u8,
-            })
-            .collect();
-        let png = encode::png_rgb8(w as u32, h as u32, &rgb).expect("encodes");
-        assert_eq!(png_size(&png), (w as u32, h as u32));
-        // IHDR chunk is 8 + 13 + 4 bytes after the signature; IDAT follows.
-        let idat_at = 8 + 25;
-        let len =
-            u32::from_be_bytes(png[idat_at..idat_at + 4].try_into().expect("4 bytes")) as usize;
-        assert_eq!(&png[idat_at + 4..idat_at + 8], b"IDAT");
-        let z = &png[idat_at + 8..idat_at + 8 + len];
-        assert_eq!(&z[..2], &[0x78, 0x01]);
-        let raw = inflate_fixed(&z[2..z.len() - 4]);
-        assert_eq!(z[z.len() - 4..], encode::adler32(&raw).to_be_bytes());
-        // Undo the filters (PNG spec, section 9.2).
-        let stride = w * 3;
-        let mut pixels: Vec<u8> = Vec::new();
-        for (row, line) in raw.chunks_exact(stride + 1).enumerate() {
-            for x in 0..stride {
-                let left = if x >= 3 {
-                    pixels[row * stride + x - 3]
-                } else {
-                    0
-                };
-                let up = if row > 0 {
-                    pixels[(row - 1) * stride + x]
-                } else {
-                    0
-                };
-                let v = line[1 + x];
-                pixels.push(match line[0] {
-                    0 => v,
-                    1 => v.wrapping_add(left),
-                    2 => v.wrapping_add(up),
-                    f => panic!("unexpected filter {f}"),
-                });
-            }
-        }
-        assert_eq!(pixels, rgb);
     }
 }

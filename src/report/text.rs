@@ -21,7 +21,11 @@ pub fn partials_table(file: &Path, a: &PartialAnalysis) -> String {
         a.tap.span_s * 1e3,
         a.partials.len()
     );
-    let _ = writeln!(s, "{:>11} {:>9} {:>8} {:>8} {:>8}", "freq [Hz]", "level[dB]", "SNR[dB]", "T60 [s]", "Q");
+    let _ = writeln!(
+        s,
+        "{:>11} {:>9} {:>8} {:>8} {:>8}",
+        "freq [Hz]", "level[dB]", "SNR[dB]", "T60 [s]", "Q"
+    );
     for p in &a.partials {
         let _ = writeln!(
             s,

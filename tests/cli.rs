@@ -1,0 +1,471 @@
+//! End-to-end tests of the built binary: synthetic recordings made by
+//! `tonus synth`, fitted by `tonus fit`, and bad input of every kind.
+//! Everything is written to temporary directories, never to `reports/`.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn tonus(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_tonus"))
+        .args(args)
+        .output()
+        .expect("the tonus binary runs")
+}
+
+fn text(o: &Output) -> (String, String) {
+    (
+        String::from_utf8_lossy(&o.stdout).into_owned(),
+        String::from_utf8_lossy(&o.stderr).into_owned(),
+    )
+}
+
+fn synth(dir: &Path, name: &str, args: &[&str]) -> PathBuf {
+    let out = dir.join(name);
+    let mut all: Vec<&str> = vec!["synth"];
+    all.extend_from_slice(args);
+    all.extend_from_slice(&["-o", out.to_str().unwrap()]);
+    let o = tonus(&all);
+    assert!(o.status.success(), "synth failed: {:?}", text(&o));
+    out
+}
+
+fn fit_json(args: &[&str]) -> serde_json::Value {
+    let mut all = vec!["fit"];
+    all.extend_from_slice(args);
+    all.push("--json");
+    let o = tonus(&all);
+    let (out, err) = text(&o);
+    assert!(o.status.code().is_some_and(|c| c <= 1), "{err}");
+    serde_json::from_str(&out).unwrap_or_else(|e| panic!("{e}: {out}"))
+}
+
+/// Checks the fitted tension against the truth: within `rel` and inside
+/// the reported ±2u interval.
+fn check_tension(v: &serde_json::Value, truth: f64, rel: f64) {
+    let t = v["tension"]["value"].as_f64().unwrap();
+    let u = v["tension"]["standard_uncertainty"].as_f64().unwrap();
+    assert_eq!(v["tension"]["unit"], "N/m");
+    assert!((t / truth - 1.0).abs() < rel, "tension {t} vs {truth}");
+    assert!(
+        (t - truth).abs() <= 2.0 * u,
+        "truth {truth} outside {t} ± 2·{u}"
+    );
+}
+
+#[test]
+fn rectangle_with_missing_family_and_spurious_peaks() {
+    let dir = tempfile::tempdir().unwrap();
+    // Tap at x = Lx/2: every mode with even m has a nodal line there. Two
+    // extra tones stand for frame rattle.
+    let geo = [
+        "--width",
+        "400mm",
+        "--height",
+        "300mm",
+        "--areal-density",
+        "0.26kg/m2",
+    ];
+    let mut args: Vec<&str> = geo.to_vec();
+    args.extend_from_slice(&[
+        "--tension",
+        "2500N/m",
+        "--tap-at",
+        "0.5,0.31",
+        "--snr",
+        "30",
+        "--seed",
+        "5",
+        "--extra-tone",
+        "262Hz:-12:0.3s",
+        "--extra-tone",
+        "1187Hz:-20:0.2s",
+    ]);
+    let wav = synth(dir.path(), "rect.wav", &args);
+    let mut fit_args = vec![wav.to_str().unwrap()];
+    fit_args.extend_from_slice(&geo);
+    fit_args.extend_from_slice(&["--tap-at", "0.5,0.31"]);
+    let v = fit_json(&fit_args);
+    check_tension(&v, 2500.0, 0.005);
+    // No even-m mode is claimed among the fitted ones.
+    for m in v["modes"].as_array().unwrap() {
+        if !m["crowded"].as_bool().unwrap() && !m["outlier"].as_bool().unwrap() {
+            assert_eq!(m["m"].as_u64().unwrap() % 2, 1, "{m}");
+        }
+    }
+    let unmatched: Vec<f64> = v["unmatched_partials"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|p| p["frequency_hz"].as_f64().unwrap())
+        .collect();
+    assert!(
+        unmatched.iter().any(|f| (f - 262.0).abs() < 1.0),
+        "{unmatched:?}"
+    );
+    for key in [
+        "wave_speed",
+        "modes",
+        "rms_residual_cents",
+        "quality",
+        "warnings",
+        "tension_over_density",
+    ] {
+        assert!(!v[key].is_null(), "{key} missing");
+    }
+    for key in ["m", "n", "predicted_hz", "measured_hz", "residual_cents"] {
+        assert!(!v["modes"][0][key].is_null(), "modes[].{key} missing");
+    }
+}
+
+#[test]
+fn circle_drum_head() {
+    let dir = tempfile::tempdir().unwrap();
+    let geo = [
+        "--shape",
+        "circle",
+        "--diameter",
+        "14in",
+        "--thickness",
+        "0.19mm",
+        "--density",
+        "1390kg/m3",
+    ];
+    let mut args: Vec<&str> = geo.to_vec();
+    args.extend_from_slice(&[
+        "--tension",
+        "3000N/m",
+        "--tap-at",
+        "0.55,20",
+        "--snr",
+        "30",
+        "--seed",
+        "9",
+        "--extra-tone",
+        "777Hz:-15:0.2s",
+    ]);
+    let wav = synth(dir.path(), "drum.wav", &args);
+    let mut fit_args = vec![wav.to_str().unwrap()];
+    fit_args.extend_from_slice(&geo);
+    let v = fit_json(&fit_args);
+    check_tension(&v, 3000.0, 0.005);
+    assert_eq!(v["modes"][0]["m"], 0);
+    assert_eq!(v["modes"][0]["n"], 1);
+}
+
+#[test]
+fn circle_tapped_at_centre_without_tap_point_given() {
+    // Only m = 0 modes sound; the fit must still label them (0,n).
+    let dir = tempfile::tempdir().unwrap();
+    let geo = ["--diameter", "300mm", "--areal-density", "0.2kg/m2"];
+    let mut args: Vec<&str> = geo.to_vec();
+    args.extend_from_slice(&[
+        "--tension",
+        "2000N/m",
+        "--tap-at",
+        "0.0",
+        "--snr",
+        "35",
+        "--seed",
+        "3",
+    ]);
+    let wav = synth(dir.path(), "centre.wav", &args);
+    let mut fit_args = vec![wav.to_str().unwrap()];
+    fit_args.extend_from_slice(&geo);
+    fit_args.extend_from_slice(&["--tap-at", "0.0"]);
+    let v = fit_json(&fit_args);
+    check_tension(&v, 2000.0, 0.005);
+}
+
+#[test]
+fn outputs_are_written_whole() {
+    let dir = tempfile::tempdir().unwrap();
+    let geo = [
+        "--width",
+        "500mm",
+        "--height",
+        "400mm",
+        "--areal-density",
+        "40g/m2",
+    ];
+    let mut args: Vec<&str> = geo.to_vec();
+    args.extend_from_slice(&["--tension", "20N/cm", "--snr", "35"]);
+    let wav = synth(dir.path(), "screen.wav", &args);
+    let out = dir.path().join("out");
+    let mut fit_args = vec![
+        "fit",
+        wav.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--tension-unit",
+        "N/cm",
+    ];
+    fit_args.extend_from_slice(&geo);
+    let o = tonus(&fit_args);
+    let (stdout, err) = text(&o);
+    assert!(o.status.success(), "{err}");
+    assert!(stdout.contains("N/cm"), "{stdout}");
+    for name in [
+        "screen.json",
+        "screen.modes.csv",
+        "screen.report.md",
+        "screen.spectrum.png",
+    ] {
+        let p = out.join(name);
+        assert!(
+            p.metadata().map(|m| m.len() > 100).unwrap_or(false),
+            "{name}"
+        );
+    }
+    let leftovers: Vec<_> = std::fs::read_dir(&out)
+        .unwrap()
+        .filter_map(|e| e.ok())
+        .filter(|e| e.file_name().to_string_lossy().ends_with(".part"))
+        .collect();
+    assert!(leftovers.is_empty());
+    let md = std::fs::read_to_string(out.join("screen.report.md")).unwrap();
+    assert!(md.contains("Caution"));
+    let csv = std::fs::read_to_string(out.join("screen.modes.csv")).unwrap();
+    assert!(csv.starts_with("m,n,labels,predicted_hz,measured_hz,residual_cents"));
+}
+
+#[test]
+fn tuning_target_from_fundamental() {
+    // f(1,1) = (c/2)·√(1/0.4² + 1/0.3²) = c·2.0833 → c = 180/2.0833 =
+    // 86.4 m/s, T = 0.26·86.4² = 1940.9 N/m.
+    let o = tonus(&[
+        "modes",
+        "--width",
+        "400mm",
+        "--height",
+        "300mm",
+        "--areal-density",
+        "0.26kg/m2",
+        "--fundamental",
+        "180Hz",
+        "--json",
+    ]);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let t = v["tension"]["value"].as_f64().unwrap();
+    let c = 180.0 / (0.5 * (1.0f64 / 0.16 + 1.0 / 0.09).sqrt());
+    assert!((t - 0.26 * c * c).abs() < 1e-6 * t, "{t}");
+    assert!((v["lines"][0]["frequency_hz"].as_f64().unwrap() - 180.0).abs() < 1e-9);
+}
+
+#[test]
+fn demo_fits_every_recording() {
+    let dir = tempfile::tempdir().unwrap();
+    let rec = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-recordings");
+    let o = tonus(&[
+        "demo",
+        "--recordings",
+        rec.to_str().unwrap(),
+        "--out",
+        dir.path().to_str().unwrap(),
+    ]);
+    let (stdout, err) = text(&o);
+    assert!(o.status.code().is_some_and(|c| c <= 1), "{err}");
+    assert!(dir.path().join("summary.csv").exists());
+    assert!(dir.path().join("README.md").exists());
+    assert!(stdout.contains("drumhead-14in.wav"), "{stdout}");
+    assert!(!err.contains("panicked"));
+}
+
+/// Runs `fit` on a bad file and checks for a one-line error, exit 2, no panic.
+fn expect_clean_error(args: &[&str], needle: &str) {
+    let o = tonus(args);
+    let (_, err) = text(&o);
+    assert_eq!(o.status.code(), Some(2), "{args:?}: {err}");
+    assert!(!err.contains("panicked"), "{err}");
+    assert_eq!(err.trim_end().lines().count(), 1, "one line: {err}");
+    assert!(
+        err.to_lowercase().contains(needle),
+        "{args:?}: expected '{needle}' in {err}"
+    );
+}
+
+fn write_wav(path: &Path, samples: &[f32]) {
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: 48000,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(path, spec).unwrap();
+    for &s in samples {
+        w.write_sample((s.clamp(-1.0, 1.0) * 32767.0) as i16)
+            .unwrap();
+    }
+    w.finalize().unwrap();
+}
+
+#[test]
+fn bad_input_gives_one_line_errors() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let geo = [
+        "--width",
+        "400mm",
+        "--height",
+        "300mm",
+        "--areal-density",
+        "0.26kg/m2",
+    ];
+    let run = |file: &Path, needle: &str| {
+        let mut args = vec!["fit", file.to_str().unwrap()];
+        args.extend_from_slice(&geo);
+        expect_clean_error(&args, needle);
+    };
+    let empty = d.join("empty.wav");
+    std::fs::write(&empty, b"").unwrap();
+    run(&empty, "empty");
+
+    let not_wav = d.join("notes.wav");
+    std::fs::write(&not_wav, b"tap tap tap, this is a text file").unwrap();
+    run(&not_wav, "not a readable wav");
+
+    run(&d.join("missing.wav"), "cannot read");
+
+    let silent = d.join("silent.wav");
+    write_wav(&silent, &vec![0.0; 48000]);
+    run(&silent, "silent");
+
+    let clipped = d.join("clipped.wav");
+    let square: Vec<f32> = (0..48000)
+        .map(|i| if (i / 50) % 2 == 0 { 1.0 } else { -1.0 })
+        .collect();
+    write_wav(&clipped, &square);
+    run(&clipped, "clipped");
+
+    let one = d.join("one.wav");
+    write_wav(&one, &[0.5]);
+    run(&one, "1 sample");
+
+    let truncated = d.join("truncated.wav");
+    let tone: Vec<f32> = (0..48000).map(|i| (i as f32 * 0.05).sin() * 0.5).collect();
+    write_wav(&truncated, &tone);
+    let bytes = std::fs::read(&truncated).unwrap();
+    std::fs::write(&truncated, &bytes[..bytes.len() / 2]).unwrap();
+    run(&truncated, "truncated");
+
+    // Absurd geometry, checked before the file is read.
+    let good = d.join("good.wav");
+    write_wav(&good, &tone);
+    expect_clean_error(
+        &[
+            "fit",
+            good.to_str().unwrap(),
+            "--width=-400mm",
+            "--height",
+            "300mm",
+        ],
+        "--width",
+    );
+    expect_clean_error(
+        &[
+            "fit",
+            good.to_str().unwrap(),
+            "--width",
+            "400mm",
+            "--height",
+            "300mm",
+            "--areal-density",
+            "0kg/m2",
+        ],
+        "--areal-density",
+    );
+    expect_clean_error(
+        &["fit", good.to_str().unwrap(), "--width", "400mm"],
+        "--height",
+    );
+    expect_clean_error(
+        &[
+            "fit",
+            good.to_str().unwrap(),
+            "--width",
+            "400",
+            "--height",
+            "300mm",
+        ],
+        "--width",
+    );
+    expect_clean_error(
+        &[
+            "fit",
+            good.to_str().unwrap(),
+            "--diameter",
+            "14in",
+            "--channel",
+            "3",
+        ],
+        "--channel",
+    );
+    expect_clean_error(
+        &[
+            "fit",
+            good.to_str().unwrap(),
+            "--diameter",
+            "14in",
+            "--free-aspect",
+        ],
+        "rectangle",
+    );
+}
+
+#[test]
+fn clipping_is_reported_as_a_warning() {
+    let dir = tempfile::tempdir().unwrap();
+    let geo = [
+        "--width",
+        "500mm",
+        "--height",
+        "400mm",
+        "--areal-density",
+        "40g/m2",
+    ];
+    let mut args: Vec<&str> = geo.to_vec();
+    args.extend_from_slice(&["--tension", "2000N/m", "--gain", "6"]);
+    let wav = synth(dir.path(), "hot.wav", &args);
+    let mut fit_args = vec![wav.to_str().unwrap()];
+    fit_args.extend_from_slice(&geo);
+    let v = fit_json(&fit_args);
+    let kinds: Vec<&str> = v["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| w["kind"].as_str().unwrap())
+        .collect();
+    assert!(kinds.contains(&"clipping"), "{kinds:?}");
+    assert_ne!(v["quality"]["grade"], "sound");
+}
+
+#[test]
+fn second_tap_is_reported() {
+    let dir = tempfile::tempdir().unwrap();
+    let geo = [
+        "--width",
+        "500mm",
+        "--height",
+        "400mm",
+        "--areal-density",
+        "40g/m2",
+    ];
+    let mut args: Vec<&str> = geo.to_vec();
+    args.extend_from_slice(&[
+        "--tension",
+        "2000N/m",
+        "--taps",
+        "2",
+        "--tap-interval",
+        "0.6s",
+        "--length",
+        "1.5s",
+    ]);
+    let wav = synth(dir.path(), "two.wav", &args);
+    let mut fit_args = vec![wav.to_str().unwrap()];
+    fit_args.extend_from_slice(&geo);
+    let v = fit_json(&fit_args);
+    let t = v["tap"]["further_taps_s"].as_array().unwrap();
+    assert_eq!(t.len(), 1, "{t:?}");
+    assert!((t[0].as_f64().unwrap() - 0.7).abs() < 0.01);
+    check_tension(&v, 2000.0, 0.005);
+}
