@@ -46,6 +46,9 @@ pub const DETECTION_PROBABILITY: f64 = 0.6;
 /// Missing lines are counted up to the frequency of this many assigned
 /// partials (the low modes, which a tap should always show).
 pub const LOW_MODES: usize = 5;
+/// Lines further than this many scatters from a partial are left out of
+/// its mixture density (their terms are below e^(−6)).
+pub const SCORE_REACH_SCATTERS: f64 = 3.5;
 /// Prior probability that a partial is spurious (noise, rattle, hum).
 pub const SPURIOUS_FRACTION: f64 = 0.2;
 /// Score margin (natural-log units) under which two hypotheses are ambiguous.
@@ -136,8 +139,15 @@ pub fn match_modes(
         }
     }
     let spacing = line_spacing_cents(lines, band_cents);
+    let mut coupling_prefix = Vec::with_capacity(lines.len() + 1);
+    coupling_prefix.push(0.0);
+    for l in lines {
+        coupling_prefix.push(coupling_prefix.last().copied().unwrap_or(0.0) + l.coupling);
+    }
     let ctx = ScoreContext {
         spacing: &spacing,
+        ln_factor: lines.iter().map(|l| l.factor.ln()).collect(),
+        coupling_prefix,
         band_cents,
         f_low: band_hz.0.max(1.0),
         f_high: by_freq
@@ -209,6 +219,8 @@ fn refine(partials: &[Partial], lines: &[ModeLine], c0: f64, ctx: &ScoreContext)
 /// What the score needs besides the hypothesis.
 struct ScoreContext<'a> {
     spacing: &'a [f64],
+    ln_factor: Vec<f64>,
+    coupling_prefix: Vec<f64>,
     band_cents: f64,
     f_low: f64,
     f_high: f64,
@@ -219,21 +231,20 @@ struct ScoreContext<'a> {
 /// neighbours, or the interval to the one neighbour at an end, capped at
 /// the band.
 fn line_spacing_cents(lines: &[ModeLine], band_cents: f64) -> Vec<f64> {
-    let live: Vec<usize> = (0..lines.len())
-        .filter(|&j| lines[j].coupling >= WEAK_COUPLING)
+    let live: Vec<f64> = lines
+        .iter()
+        .filter(|l| l.coupling >= WEAK_COUPLING)
+        .map(|l| l.factor)
         .collect();
-    (0..lines.len())
-        .map(|j| {
-            let g = lines[j].factor;
-            let prev = live
-                .iter()
-                .rev()
-                .map(|&i| lines[i].factor)
-                .find(|&f| f < g * (1.0 - 1e-9));
-            let next = live
-                .iter()
-                .map(|&i| lines[i].factor)
-                .find(|&f| f > g * (1.0 + 1e-9));
+    lines
+        .iter()
+        .map(|line| {
+            let g = line.factor;
+            // `live` is sorted like `lines`: find the neighbours by bisection.
+            let lo = live.partition_point(|&f| f < g * (1.0 - 1e-9));
+            let hi = live.partition_point(|&f| f <= g * (1.0 + 1e-9));
+            let prev = lo.checked_sub(1).map(|i| live[i]);
+            let next = live.get(hi).copied();
             let d = match (prev, next) {
                 (Some(p), Some(n)) => 0.5 * cents(n, p),
                 (Some(p), None) => cents(g, p),
@@ -325,40 +336,41 @@ fn score(
 ) -> Matching {
     let s = MATCH_SCATTER_CENTS;
     let norm = s * (2.0 * std::f64::consts::PI).sqrt();
-    // Lines in the band and their prior weights.
-    let in_band: Vec<usize> = (0..lines.len())
-        .filter(|&j| {
-            let f = c * lines[j].factor;
-            f >= ctx.f_low && f <= ctx.f_high
-        })
-        .collect();
-    let weight_sum: f64 = in_band.iter().map(|&j| lines[j].coupling).sum();
+    // Prior weights: the coupling of the lines in the band, summed by
+    // prefix sums over the sorted line list.
+    let ln_c = c.ln();
+    let lo_band = ctx
+        .ln_factor
+        .partition_point(|&lg| lg < ctx.f_low.ln() - ln_c);
+    let hi_band = ctx
+        .ln_factor
+        .partition_point(|&lg| lg <= ctx.f_high.ln() - ln_c);
+    let weight_sum = ctx.coupling_prefix[hi_band] - ctx.coupling_prefix[lo_band];
     // A hypothesis whose band runs past the last generated line cannot be
     // scored fairly (its weights would be spread over too few lines).
     let truncated = lines.last().is_some_and(|l| c * l.factor < ctx.f_high);
     let spurious = SPURIOUS_FRACTION / ctx.band_cents;
+    let reach = SCORE_REACH_SCATTERS * s / CENTS_PER_LN;
     let mut total = 0.0;
     for p in partials {
-        let g = p.frequency_hz / c;
-        let k = lines.partition_point(|l| l.factor < g);
+        let lg = p.frequency_hz.ln() - ln_c;
         let mut mode_density = 0.0;
         if weight_sum > 0.0 {
-            // Lines beyond 5s contribute nothing measurable.
-            let mut j = k;
-            while j > 0 && cents(p.frequency_hz, c * lines[j - 1].factor) < 5.0 * s {
-                j -= 1;
-            }
-            while j < lines.len() {
-                let r = cents(p.frequency_hz, c * lines[j].factor);
-                if r < -5.0 * s {
-                    break;
+            // Lines beyond SCORE_REACH_SCATTERS·s contribute below e^(−6).
+            let from = ctx
+                .ln_factor
+                .partition_point(|&x| x < lg - reach)
+                .max(lo_band);
+            let to = ctx
+                .ln_factor
+                .partition_point(|&x| x <= lg + reach)
+                .min(hi_band);
+            for j in from..to {
+                let k = lines[j].coupling;
+                if k > 0.0 {
+                    let r = CENTS_PER_LN * (lg - ctx.ln_factor[j]);
+                    mode_density += k / weight_sum * (-r * r / (2.0 * s * s)).exp() / norm;
                 }
-                let f = c * lines[j].factor;
-                if f >= ctx.f_low && f <= ctx.f_high {
-                    mode_density +=
-                        lines[j].coupling / weight_sum * (-r * r / (2.0 * s * s)).exp() / norm;
-                }
-                j += 1;
             }
         }
         total += (1.0 + (1.0 - SPURIOUS_FRACTION) * mode_density / spurious).ln();

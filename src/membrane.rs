@@ -234,11 +234,22 @@ impl Shape {
     }
 }
 
-/// Largest |J_m(j·ρ)| for ρ in 0..1, found on a fine grid.
-fn radial_max(m: u32, j: f64) -> f64 {
-    (0..=200)
-        .map(|i| bessel::bessel_j(m, j * i as f64 / 200.0).abs())
-        .fold(1e-12, f64::max)
+/// Largest |J_m(x)| for x in 0..j (j a zero of J_m): the first maximum of
+/// |J_m|, since the successive maxima of a Bessel function decrease
+/// (DLMF 10.21(i)). It lies before j_{m,1}, so it is the same for every
+/// zero; found once per order on a fine grid over [0, j_{m,1}] and cached.
+fn radial_max(m: u32, _j: f64) -> f64 {
+    use std::collections::HashMap;
+    use std::sync::{Mutex, OnceLock};
+    static CACHE: OnceLock<Mutex<HashMap<u32, f64>>> = OnceLock::new();
+    let cache = CACHE.get_or_init(|| Mutex::new(HashMap::new()));
+    let mut guard = cache.lock().unwrap_or_else(|e| e.into_inner());
+    *guard.entry(m).or_insert_with(|| {
+        let j1 = bessel::bessel_zero(m, 1);
+        (0..=400)
+            .map(|i| bessel::bessel_j(m, j1 * i as f64 / 400.0).abs())
+            .fold(1e-12, f64::max)
+    })
 }
 
 #[cfg(test)]

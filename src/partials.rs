@@ -17,7 +17,7 @@ use serde::Serialize;
 /// Default minimum SNR of a partial, dB.
 pub const DEFAULT_MIN_SNR_DB: f64 = 10.0;
 /// Default minimum topographic prominence of a partial, dB.
-pub const DEFAULT_MIN_PROMINENCE_DB: f64 = 3.0;
+pub const DEFAULT_MIN_PROMINENCE_DB: f64 = 6.0;
 /// Peaks more than this far below the strongest are dropped, dB: the
 /// analysis window leaves sidelobe ripple from about 65 dB down, and
 /// no mode that weak carries weight in a fit.
@@ -245,8 +245,9 @@ fn hum_family(
 /// The zero padding of [`spectrum::ZERO_PAD_FACTOR`] keeps its bias far
 /// below the bin spacing.
 pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -> Vec<Partial> {
-    let db = &spec.level_db;
-    let nb = db.len();
+    let pw = &spec.power;
+    let db = |k: usize| spec.power_to_db(pw[k]);
+    let nb = pw.len();
     let lo = ((fmin / spec.bin_hz).floor() as usize).max(1);
     let hi = ((fmax / spec.bin_hz).ceil() as usize).min(nb.saturating_sub(2));
     let mut cands: Vec<Partial> = Vec::new();
@@ -257,22 +258,28 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
         (hi.saturating_sub(lo) / spectrum::ZERO_PAD_FACTOR).max(1),
     ));
     for k in lo.max(guard)..hi.min(nb - guard) {
-        let v = db[k];
-        if !(v >= db[k - 1] && v > db[k + 1]) {
+        // Local maximum tests on power (monotonic in dB, and cheaper).
+        let v = pw[k];
+        if !(v >= pw[k - 1] && v > pw[k + 1]) {
             continue;
         }
-        if (1..=guard).any(|g| db[k - g] > v || db[k + g] > v) {
+        if (1..=guard).any(|g| pw[k - g] > v || pw[k + g] > v) {
             continue;
         }
+        // SNR test on power first: most local maxima are noise.
+        if v < spec.floor_power[k] * 10f64.powf(min_snr / 10.0) {
+            continue;
+        }
+        let v = db(k);
         let snr = v - spec.floor_db(k);
         if snr < min_snr {
             continue;
         }
-        let prom = prominence(db, k);
+        let prom = prominence(pw, k);
         if prom < cfg.min_prominence_db {
             continue;
         }
-        let (a, b, c) = (db[k - 1], db[k], db[k + 1]);
+        let (a, b, c) = (db(k - 1), db(k), db(k + 1));
         let denom = a - 2.0 * b + c;
         let delta = if denom.abs() > 1e-12 {
             (0.5 * (a - c) / denom).clamp(-0.5, 0.5)
@@ -312,9 +319,10 @@ pub fn false_alarm_snr_db(n_independent: usize) -> f64 {
     10.0 * ((n_independent as f64 / FALSE_ALARM_PROBABILITY).ln()).log10()
 }
 
-/// Topographic prominence of the peak at `k`: its height over the higher
-/// of the two lowest points between it and the nearest higher ground on
-/// either side (or the spectrum's end).
+/// Topographic prominence of the peak at `k`, dB: its height over the
+/// higher of the two lowest points between it and the nearest higher
+/// ground on either side (or the spectrum's end). Works on power; the
+/// result is converted to dB.
 fn prominence(db: &[f64], k: usize) -> f64 {
     let v = db[k];
     let mut left_min = v;
@@ -335,7 +343,7 @@ fn prominence(db: &[f64], k: usize) -> f64 {
         }
         right_min = right_min.min(db[j]);
     }
-    v - left_min.max(right_min)
+    10.0 * (v / left_min.max(right_min).max(1e-300)).log10()
 }
 
 /// Measures each partial's decay on a short-time Fourier transform of the

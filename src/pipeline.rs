@@ -108,6 +108,37 @@ pub struct Measurement {
     pub duration_s: f64,
 }
 
+/// Predicted lines for a panel up to at least `g_max`, from a small
+/// process-wide cache: a batch of recordings of one panel type asks for the
+/// same lines again and again (circle lines cost Bessel evaluations). The
+/// range is rounded up to a power of 1.25 times the fundamental factor so
+/// that nearby requests share an entry.
+fn cached_lines(panel: &Panel, g_max: f64) -> Vec<ModeLine> {
+    use std::collections::HashMap;
+    use std::sync::{Mutex, OnceLock};
+    type Key = (String, i32);
+    static CACHE: OnceLock<Mutex<HashMap<Key, Vec<ModeLine>>>> = OnceLock::new();
+    let g1 = panel.shape.fundamental_factor();
+    let step = (g_max / g1).max(1.0).ln() / 1.25f64.ln();
+    let bucket = step.ceil() as i32;
+    let g_bucket = g1 * 1.25f64.powi(bucket);
+    let key = (
+        format!("{:?}|{:?}|{:?}", panel.shape, panel.tap, panel.pickup),
+        bucket,
+    );
+    let cache = CACHE.get_or_init(|| Mutex::new(HashMap::new()));
+    if let Some(hit) = cache.lock().unwrap_or_else(|e| e.into_inner()).get(&key) {
+        return hit.clone();
+    }
+    let lines = panel.shape.lines(g_bucket, panel.tap, panel.pickup);
+    let mut guard = cache.lock().unwrap_or_else(|e| e.into_inner());
+    if guard.len() > 64 {
+        guard.clear();
+    }
+    guard.insert(key, lines.clone());
+    lines
+}
+
 /// Analyses a recording and fits the panel's model to it.
 ///
 /// # Errors
@@ -148,9 +179,7 @@ pub fn measure_with(
     let lines = if parts.is_empty() {
         Vec::new()
     } else {
-        panel
-            .shape
-            .lines(g_anchor * (f_hi / f_lo) * 1.05, panel.tap, panel.pickup)
+        cached_lines(panel, g_anchor * (f_hi / f_lo) * 1.05)
     };
     let matching = matching::match_modes(
         parts,

@@ -24,7 +24,7 @@ use realfft::RealFftPlanner;
 use serde::Serialize;
 
 /// Zero padding: FFT length at least this many times the span.
-pub const ZERO_PAD_FACTOR: usize = 4;
+pub const ZERO_PAD_FACTOR: usize = 2;
 /// Fraction of the span faded in at its start.
 pub const FADE_IN_FRACTION: f64 = 0.1;
 /// Fraction of the span tapered at its end.
@@ -42,8 +42,6 @@ pub struct Spectrum {
     pub bin_hz: f64,
     /// |X_k|² for k = 0..=N/2.
     pub power: Vec<f64>,
-    /// Level in dB re a full-scale sine, per bin.
-    pub level_db: Vec<f64>,
     /// Estimated mean noise power per bin (same scale as `power`).
     pub floor_power: Vec<f64>,
     /// Sum of the window, for level scaling.
@@ -64,6 +62,11 @@ impl Spectrum {
     /// Noise floor in dB re a full-scale sine, at bin `k`.
     pub fn floor_db(&self, k: usize) -> f64 {
         self.power_to_db(self.floor_power[k.min(self.floor_power.len() - 1)])
+    }
+
+    /// Level of bin `k` in dB re a full-scale sine.
+    pub fn level_db(&self, k: usize) -> f64 {
+        self.power_to_db(self.power[k.min(self.power.len() - 1)])
     }
 
     /// Converts a bin power to dB re a full-scale sine.
@@ -142,8 +145,9 @@ pub fn compute(
     let background = noise.and_then(|seg| noise_density(seg, sample_rate_hz, planner));
     let (floor_power, floor_source) = match &background {
         Some(b) => {
-            let floor = (0..power.len())
-                .map(|k| interpolate(&b.grid_hz, &b.density, k as f64 * bin_hz) * window_sq_sum)
+            let floor = interpolate_onto(&b.grid_hz, &b.density, bin_hz, power.len())
+                .into_iter()
+                .map(|d| d * window_sq_sum)
                 .collect();
             let seconds = noise
                 .map(|s| s.len() as f64 / sample_rate_hz)
@@ -155,15 +159,9 @@ pub fn compute(
             FloorSource::SpanQuantile,
         ),
     };
-    let norm = 4.0 / (window_sum * window_sum);
-    let level_db = power
-        .iter()
-        .map(|&p| 10.0 * (norm * p + 1e-30).log10())
-        .collect();
     Spectrum {
         bin_hz,
         power,
-        level_db,
         floor_power,
         window_sum,
         window_sq_sum,
@@ -290,18 +288,27 @@ impl Background {
     }
 }
 
-/// Linear interpolation on an increasing grid, clamped at the ends.
-fn interpolate(grid: &[f64], values: &[f64], x: f64) -> f64 {
-    let k = grid.partition_point(|&g| g < x);
-    if k == 0 {
-        return values[0];
+/// Linear interpolation of (grid, values) onto the points k·step,
+/// k = 0..n, clamped at the ends; one pass over both grids.
+fn interpolate_onto(grid: &[f64], values: &[f64], step: f64, n: usize) -> Vec<f64> {
+    let mut out = Vec::with_capacity(n);
+    let mut j = 0;
+    for k in 0..n {
+        let x = k as f64 * step;
+        while j < grid.len() && grid[j] < x {
+            j += 1;
+        }
+        out.push(if j == 0 {
+            values[0]
+        } else if j >= grid.len() {
+            values[values.len() - 1]
+        } else {
+            let (x0, x1) = (grid[j - 1], grid[j]);
+            let a = (x - x0) / (x1 - x0);
+            values[j - 1] * (1.0 - a) + values[j] * a
+        });
     }
-    if k >= grid.len() {
-        return values[values.len() - 1];
-    }
-    let (x0, x1) = (grid[k - 1], grid[k]);
-    let a = (x - x0) / (x1 - x0);
-    values[k - 1] * (1.0 - a) + values[k] * a
+    out
 }
 
 /// Robust noise floor: running lower quartile over ±1/6 octave, evaluated at
@@ -403,7 +410,7 @@ mod tests {
         let s = compute(&x, None, sr, &mut planner);
         let k = s.bin_of(1000.0);
         let peak = (k - 3..=k + 3)
-            .map(|j| s.level_db[j])
+            .map(|j| s.level_db(j))
             .fold(f64::MIN, f64::max);
         // 20·log10(0.5) = −6.02 dB; 0.05 dB covers the grid offset.
         assert!((peak + 6.0206).abs() < 0.05, "{peak}");

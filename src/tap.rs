@@ -27,7 +27,7 @@ pub const RETAP_LOOKBACK_S: f64 = 0.05;
 /// background (dB).
 pub const SPAN_END_ABOVE_FLOOR_DB: f64 = 3.0;
 /// Longest span analysed, in seconds.
-pub const MAX_SPAN_S: f64 = 2.0;
+pub const MAX_SPAN_S: f64 = 1.2;
 /// Shortest span analysed when the file holds it, in seconds.
 pub const MIN_SPAN_S: f64 = 0.5;
 /// The span is lengthened by this factor past the point where the

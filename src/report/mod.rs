@@ -58,7 +58,7 @@ pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::Sp
         .min(spec.bin_hz * (spec.power.len() - 1) as f64);
     let n = ((max_f / spec.bin_hz) as usize + 1).min(spec.power.len());
     let freqs_hz: Vec<f64> = (0..n).map(|k| k as f64 * spec.bin_hz).collect();
-    let level_db = spec.level_db[..n].to_vec();
+    let level_db: Vec<f64> = (0..n).map(|k| spec.level_db(k)).collect();
     let floor_db: Vec<f64> = (0..n).map(|k| spec.floor_db(k)).collect();
     let matched: Vec<usize> = m
         .matching
