@@ -46,8 +46,8 @@
 use nalgebra::Matrix4;
 use std::f64::consts::PI;
 
-/// Below this value of N·a (a = 2α/fs·½, i.e. N times the per-sample
-/// amplitude decay) the variance V of the truncated geometric weights is
+/// Below this value of N·a (a = α/fs, the amplitude decay per sample)
+/// the variance V of the truncated geometric weights is
 /// taken from its series, V = (N²−1)/12 − (N⁴−1)·(2a)²/240 + O((Na)⁴N²),
 /// whose next term is smaller than 1e−8 relative there; above it the sinh
 /// form loses at most about 48·ε/(2Na)² ≈ 1e−10 relative to cancellation.
@@ -254,13 +254,13 @@ mod tests {
     /// fs = 1000 Hz, N = 1000:
     /// var(ω) = 24σ²/(A²·N·(N²−1)) = 0.24/(1000·999 999)
     ///        = 0.24/999 999 000 = 2.400 002 4e−10 rad²,
-    /// σ_ω = 1.549 194 2e−5 rad/sample,
-    /// σ_f = σ_ω·fs/2π = 1.549 194 2e−5·159.154 943 = 2.465 603e−3 Hz.
+    /// σ_ω = 1.549 194 1e−5 rad/sample,
+    /// σ_f = σ_ω·fs/2π = 1.549 194 1e−5·159.154 943 = 2.465 619e−3 Hz.
     /// (Kay's 12/((2π)²ηN(N²−1))·fs² gives the same: 12/(39.478·50·
-    /// 999 999 000)·10⁶ = 6.079 27e−6 Hz², whose root is 2.465 6e−3 Hz.)
+    /// 999 999 000)·10⁶ = 6.079 28e−6 Hz², whose root is 2.465 62e−3 Hz.)
     #[test]
     fn undamped_limit_matches_hand_value() {
-        let hand = 2.465_603e-3;
+        let hand = 2.465_619e-3;
         let closed = crlb_frequency_hz(1.0, 0.0, 1000.0, 1000, 0.01);
         // Seven digits were carried by hand.
         assert!((closed / hand - 1.0).abs() < 1e-6, "{closed}");
@@ -298,7 +298,7 @@ mod tests {
     #[test]
     fn closed_sums_match_direct_sums() {
         for &(a, n) in &[
-            (1e-7, 5000usize),
+            (1e-7f64, 5000usize),
             (1e-6, 5000),
             (2e-6, 5000),
             (1e-4, 20_000),

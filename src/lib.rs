@@ -9,7 +9,9 @@
 pub mod bessel;
 pub mod cli;
 pub mod commands;
+pub mod crlb;
 pub mod error;
+pub mod estimator;
 pub mod fit;
 pub mod matching;
 pub mod membrane;

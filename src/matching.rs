@@ -365,10 +365,10 @@ fn score(
                 .ln_factor
                 .partition_point(|&x| x <= lg + reach)
                 .min(hi_band);
-            for j in from..to {
-                let k = lines[j].coupling;
+            for (line, &lf) in lines[from..to].iter().zip(&ctx.ln_factor[from..to]) {
+                let k = line.coupling;
                 if k > 0.0 {
-                    let r = CENTS_PER_LN * (lg - ctx.ln_factor[j]);
+                    let r = CENTS_PER_LN * (lg - lf);
                     mode_density += k / weight_sum * (-r * r / (2.0 * s * s)).exp() / norm;
                 }
             }
