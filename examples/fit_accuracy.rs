@@ -52,7 +52,8 @@ fn main() {
     for (name, shape, sigma, tension) in cases {
         for snr in [20.0, 30.0, 40.0] {
             let mut rng = Rng::new(99);
-            let (mut sum, mut sum2, mut inside, mut unfit, mut n, mut wrong) = (0.0, 0.0, 0, 0, 0, 0);
+            let (mut sum, mut sum2, mut inside, mut unfit, mut n, mut wrong) =
+                (0.0, 0.0, 0, 0, 0, 0);
             for k in 0..trials {
                 // A random tap point away from the edges, a random tension
                 // within ±20 %.
@@ -78,6 +79,8 @@ fn main() {
                     areal_density: Some(KgPerM2(sigma)),
                     tap: Some(tap),
                     pickup: None,
+                    areal_density_u: None,
+                    size_u: None,
                 };
                 let m =
                     measure_with(&rec, &panel, &FitOptions::default(), &mut planner).expect("fit");

@@ -59,6 +59,8 @@ fn main() {
             areal_density: Some(KgPerM2(0.26)),
             tap: Some(tap),
             pickup: None,
+            areal_density_u: None,
+            size_u: None,
         };
         let opts = FitOptions::default();
         let mut planner = realfft::RealFftPlanner::new();

@@ -46,6 +46,9 @@ pub enum Command {
         /// Also fit the rectangle's effective height (width as given).
         #[arg(long)]
         free_aspect: bool,
+        /// Model: isotropic (default), free-aspect, air (air-loaded membrane).
+        #[arg(long)]
+        model: Option<String>,
         /// Unit for the printed tension: N/m, N/cm, kN/m, lbf/in.
         #[arg(long, default_value = "N/m")]
         tension_unit: String,
@@ -131,6 +134,9 @@ pub enum Command {
         /// Noise seed [default: 1].
         #[arg(long, default_value_t = 1)]
         seed: u64,
+        /// Lower the modes by air loading (a light film in air).
+        #[arg(long)]
+        air: bool,
     },
     /// Fit every recording in the demo folder and write the reports.
     Demo {
@@ -179,6 +185,12 @@ pub struct PanelArgs {
     /// Pickup (microphone) point, same form as --tap-at.
     #[arg(long)]
     pub pickup_at: Option<String>,
+    /// Standard uncertainty of the areal density, e.g. 0.005kg/m2.
+    #[arg(long)]
+    pub areal_density_u: Option<String>,
+    /// Standard uncertainty of each dimension, e.g. 0.5mm.
+    #[arg(long)]
+    pub size_u: Option<String>,
 }
 
 /// Recording input flags.
@@ -201,6 +213,14 @@ impl PanelArgs {
     /// # Errors
     /// Unreadable panel file, malformed or missing values.
     pub fn to_panel(&self) -> Result<Panel> {
+        Panel::from_spec(&self.to_spec()?)
+    }
+
+    /// The merged specification (flags over the panel file).
+    ///
+    /// # Errors
+    /// Unreadable or invalid panel file.
+    pub fn to_spec(&self) -> Result<PanelSpec> {
         let flags = PanelSpec {
             shape: self.shape.clone(),
             width: self.width.clone(),
@@ -212,12 +232,15 @@ impl PanelArgs {
             density: self.density.clone(),
             tap_at: self.tap_at.clone(),
             pickup_at: self.pickup_at.clone(),
+            areal_density_u: self.areal_density_u.clone(),
+            size_u: self.size_u.clone(),
+            model: None,
         };
         let base = match &self.panel {
             Some(p) => PanelSpec::from_file(p)?,
             None => PanelSpec::default(),
         };
-        Panel::from_spec(&flags.over(base))
+        Ok(flags.over(base))
     }
 }
 
@@ -262,13 +285,34 @@ impl InputArgs {
 }
 
 /// Validated options of `fit`.
-pub fn fit_options(free_aspect: bool, input: &InputArgs) -> Result<FitOptions> {
+///
+/// # Errors
+/// An unknown model name, or two models asked at once.
+pub fn fit_options(
+    free_aspect: bool,
+    model: Option<&str>,
+    input: &InputArgs,
+) -> Result<FitOptions> {
+    let model = match (free_aspect, model) {
+        (true, None) | (_, Some("free-aspect")) => FitModel::FreeAspect,
+        (false, None) | (false, Some("isotropic")) => FitModel::Isotropic,
+        (false, Some("air")) | (false, Some("air-loaded")) => FitModel::AirLoaded,
+        (true, Some(m)) => {
+            return Err(TonusError::Panel(format!(
+                "--free-aspect and --model {m} cannot be combined; choose one"
+            )))
+        }
+        (false, Some(other)) => {
+            return Err(TonusError::BadQuantity {
+                key: "--model".into(),
+                value: other.into(),
+                expected: "isotropic, free-aspect or air".into(),
+                example: "air".into(),
+            })
+        }
+    };
     Ok(FitOptions {
-        model: if free_aspect {
-            FitModel::FreeAspect
-        } else {
-            FitModel::Isotropic
-        },
+        model,
         analysis: input.analysis()?,
     })
 }
@@ -296,6 +340,7 @@ pub fn synth_config(
     tap_interval: Option<&str>,
     gain: f64,
     seed: u64,
+    air: bool,
 ) -> Result<SynthConfig> {
     let p = panel.to_panel()?;
     let density = p.areal_density.ok_or_else(|| {
@@ -367,6 +412,7 @@ pub fn synth_config(
     cfg.taps = taps.max(1);
     cfg.gain_db = gain;
     cfg.seed = seed;
+    cfg.air_loaded = air;
     Ok(cfg)
 }
 

@@ -230,13 +230,19 @@ pub fn synth(cfg: &SynthConfig, output: &Path, bits: u16, float: bool) -> Result
     let x = synth::synthesise(cfg)?;
     recording::write_wav(output, &x, cfg.sample_rate_hz, bits, float)?;
     let c = membrane::wave_speed(cfg.tension, cfg.areal_density).0;
+    let g1 = cfg.shape.fundamental_factor();
+    let f1 = if cfg.air_loaded {
+        c * g1 * crate::airload::loading_factor(g1, cfg.areal_density.0)
+    } else {
+        c * g1
+    };
     Ok(Outcome {
         stdout: format!(
             "{}: {:.2} s at {} Hz, fundamental {:.2} Hz, SNR {} dB\n",
             output.display(),
             cfg.duration_s,
             cfg.sample_rate_hz,
-            c * cfg.shape.fundamental_factor(),
+            f1,
             cfg.snr_db
         ),
         stderr: String::new(),
@@ -280,7 +286,12 @@ pub fn demo(dir: &Path, out: &Path) -> Result<Outcome> {
             let spec = PanelSpec::from_file(&panel_file)?;
             let panel = Panel::from_spec(&spec)?;
             let rec = recording::read_wav(wav, ChannelChoice::MixDown)?;
-            let m = pipeline::measure(&rec, &panel, &FitOptions::default())?;
+            let opts = crate::cli::fit_options(
+                false,
+                spec.model.as_deref(),
+                &crate::cli::InputArgs::default(),
+            )?;
+            let m = pipeline::measure(&rec, &panel, &opts)?;
             report::write_fit_outputs(out, wav, &m, unit, true)?;
             Ok(m)
         })();

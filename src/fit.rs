@@ -73,6 +73,9 @@ pub enum FitModel {
     Isotropic,
     /// Wave speed and the rectangle's effective height (width as given).
     FreeAspect,
+    /// Wave speed with the air-loading correction of [`crate::airload`]
+    /// (needs the areal density).
+    AirLoaded,
 }
 
 /// The outcome of a fit.

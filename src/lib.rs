@@ -6,7 +6,9 @@
 //! modes → [`fit`] fits the wave speed and tension → [`report`] writes the
 //! results. [`synth`] makes test and demo recordings by modal synthesis.
 
+pub mod airload;
 pub mod bessel;
+pub mod budget;
 pub mod cli;
 pub mod commands;
 pub mod crlb;

@@ -20,6 +20,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             panel,
             input,
             free_aspect,
+            model,
             tension_unit,
             json,
             out,
@@ -28,7 +29,11 @@ fn run(cli: Cli) -> Result<Outcome> {
             &recording,
             input.channel()?,
             &panel.to_panel()?,
-            &cli::fit_options(free_aspect, &input)?,
+            &cli::fit_options(
+                free_aspect,
+                model.as_deref().or(panel.to_spec()?.model.as_deref()),
+                &input,
+            )?,
             &commands::OutputOptions {
                 unit: cli::tension_unit(&tension_unit)?,
                 as_json: json,
@@ -69,6 +74,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             tap_interval,
             gain,
             seed,
+            air,
         } => {
             let cfg = cli::synth_config(
                 &panel,
@@ -86,6 +92,7 @@ fn run(cli: Cli) -> Result<Outcome> {
                 tap_interval.as_deref(),
                 gain,
                 seed,
+                air,
             )?;
             let (b, float) = cli::sample_format(&bits)?;
             commands::synth(&cfg, &output, b, float)

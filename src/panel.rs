@@ -43,6 +43,12 @@ pub struct PanelSpec {
     pub tap_at: Option<String>,
     /// Pickup point.
     pub pickup_at: Option<String>,
+    /// Standard uncertainty of the areal density.
+    pub areal_density_u: Option<String>,
+    /// Standard uncertainty of each dimension.
+    pub size_u: Option<String>,
+    /// Fit model to use for this panel (isotropic, free-aspect, air).
+    pub model: Option<String>,
 }
 
 impl PanelSpec {
@@ -59,6 +65,9 @@ impl PanelSpec {
             density: self.density.or(base.density),
             tap_at: self.tap_at.or(base.tap_at),
             pickup_at: self.pickup_at.or(base.pickup_at),
+            areal_density_u: self.areal_density_u.or(base.areal_density_u),
+            size_u: self.size_u.or(base.size_u),
+            model: self.model.or(base.model),
         }
     }
 
@@ -101,12 +110,15 @@ impl PanelSpec {
                 "density" => &mut spec.density,
                 "tap-at" | "tap_at" => &mut spec.tap_at,
                 "pickup-at" | "pickup_at" => &mut spec.pickup_at,
+                "areal-density-u" | "areal_density_u" => &mut spec.areal_density_u,
+                "size-u" | "size_u" => &mut spec.size_u,
+                "model" => &mut spec.model,
                 "name" | "note" => continue,
                 _ => {
                     return Err(TonusError::ConfigFile {
                         path: path.to_path_buf(),
                         reason: format!(
-                            "unknown key '{key}'; known keys: shape, width, height, diameter, radius, areal-density, thickness, density, tap-at, pickup-at, name, note"
+                            "unknown key '{key}'; known keys: shape, width, height, diameter, radius, areal-density, areal-density-u, thickness, density, size-u, tap-at, pickup-at, model, name, note"
                         ),
                     })
                 }
@@ -128,6 +140,10 @@ pub struct Panel {
     pub tap: Option<Point>,
     /// Pickup point, if known.
     pub pickup: Option<Point>,
+    /// Standard uncertainty of σ, if given.
+    pub areal_density_u: Option<KgPerM2>,
+    /// Standard uncertainty of each dimension, if given.
+    pub size_u: Option<Meters>,
 }
 
 impl Panel {
@@ -221,11 +237,23 @@ impl Panel {
             .as_deref()
             .map(|t| parse_point("--pickup-at", t, &shape))
             .transpose()?;
+        let areal_density_u = spec
+            .areal_density_u
+            .as_deref()
+            .map(|t| units::parse_areal_density("--areal-density-u", t))
+            .transpose()?;
+        let size_u = spec
+            .size_u
+            .as_deref()
+            .map(|t| units::parse_length("--size-u", t))
+            .transpose()?;
         Ok(Panel {
             shape,
             areal_density,
             tap,
             pickup,
+            areal_density_u,
+            size_u,
         })
     }
 

@@ -106,6 +106,8 @@ pub struct Measurement {
     pub warnings: Vec<Warning>,
     /// Recording duration, s.
     pub duration_s: f64,
+    /// Uncertainty budget of the tension (GUM), when σ is known.
+    pub budget: Option<crate::budget::Budget>,
 }
 
 /// Predicted lines for a panel up to at least `g_max`, from a small
@@ -156,6 +158,11 @@ pub fn measure_with(
     opts: &FitOptions,
     planner: &mut RealFftPlanner<f64>,
 ) -> Result<Measurement> {
+    if opts.model == FitModel::AirLoaded && panel.areal_density.is_none() {
+        return Err(TonusError::Panel(
+            "--model air needs --areal-density (air loading depends on it)".into(),
+        ));
+    }
     if opts.model == FitModel::FreeAspect && !matches!(panel.shape, Shape::Rectangle { .. }) {
         return Err(TonusError::Panel(
             "--free-aspect needs a rectangle; a circle has no aspect ratio".into(),
@@ -180,6 +187,10 @@ pub fn measure_with(
         Vec::new()
     } else {
         cached_lines(panel, g_anchor * (f_hi / f_lo) * 1.05)
+    };
+    let lines = match (opts.model, panel.areal_density) {
+        (FitModel::AirLoaded, Some(s)) => crate::airload::loaded_lines(&lines, s.0),
+        _ => lines,
     };
     let matching = matching::match_modes(
         parts,
@@ -234,6 +245,9 @@ pub fn measure_with(
         };
         // Residuals for every assignment, outliers in its numbering.
         if let Some(f) = fit_result.as_mut() {
+            if opts.model == FitModel::AirLoaded {
+                f.model = FitModel::AirLoaded;
+            }
             let c = f.wave_speed.value;
             let ly = f.effective_height_m.map(|e| e.value);
             f.residuals_cents = obs
@@ -345,6 +359,26 @@ pub fn measure_with(
         }
         None => (None, None),
     };
+    let budget = match (&fit_result, tension, panel.areal_density) {
+        (Some(f), Some(t), Some(s)) if f.model != FitModel::FreeAspect => {
+            let used: Vec<usize> = (0..modes.len())
+                .filter(|&i| !modes[i].outlier && !modes[i].crowded)
+                .collect();
+            let freqs: Vec<f64> = used.iter().map(|&i| modes[i].measured_hz).collect();
+            let labels: Vec<(u32, u32)> = used.iter().map(|&i| (modes[i].m, modes[i].n)).collect();
+            Some(crate::budget::budget(&crate::budget::BudgetInputs {
+                shape: panel.shape,
+                sigma: s.0,
+                u_sigma: panel.areal_density_u.map(|u| u.0),
+                u_size: panel.size_u.map(|u| u.0),
+                air_loaded: f.model == FitModel::AirLoaded,
+                frequencies_hz: &freqs,
+                modes: &labels,
+                u_fit: t.standard_uncertainty,
+            }))
+        }
+        _ => None,
+    };
     let median_snr = {
         let mut s: Vec<f64> = modes.iter().map(|m| m.snr_db).collect();
         s.sort_by(f64::total_cmp);
@@ -375,6 +409,7 @@ pub fn measure_with(
         unmatched,
         quality: q,
         warnings,
+        budget,
         duration_s: rec.duration_s(),
     })
 }

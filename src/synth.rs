@@ -91,6 +91,8 @@ pub struct SynthConfig {
     pub seed: u64,
     /// Highest mode frequency synthesised, Hz.
     pub max_frequency_hz: f64,
+    /// Lower every mode by the air-loading factor of [`crate::airload`].
+    pub air_loaded: bool,
 }
 
 impl SynthConfig {
@@ -115,6 +117,7 @@ impl SynthConfig {
             gain_db: 0.0,
             seed: 1,
             max_frequency_hz: 6000.0,
+            air_loaded: false,
         }
     }
 }
@@ -216,7 +219,11 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
     // (frequency, amplitude, amplitude decay rate 1/τ)
     let mut comps: Vec<(f64, f64, f64)> = Vec::new();
     for line in &lines {
-        let f = line.factor * c;
+        let f = if cfg.air_loaded {
+            line.factor * c * crate::airload::loading_factor(line.factor, cfg.areal_density.0)
+        } else {
+            line.factor * c
+        };
         let mut a = 0.0;
         for &(m, nn) in &line.labels {
             let pair = match cfg.shape {

@@ -469,3 +469,55 @@ fn second_tap_is_reported() {
     assert!((t[0].as_f64().unwrap() - 0.7).abs() < 0.01);
     check_tension(&v, 2000.0, 0.005);
 }
+
+#[test]
+fn air_loaded_head_needs_the_air_model() {
+    // A light film in air: the ideal model gives a tension far too low and
+    // says the fit is doubtful; the air-loaded model recovers the truth.
+    let dir = tempfile::tempdir().unwrap();
+    let geo = [
+        "--diameter",
+        "14in",
+        "--thickness",
+        "0.19mm",
+        "--density",
+        "1390kg/m3",
+        "--tap-at",
+        "0.6",
+    ];
+    let mut args: Vec<&str> = geo.to_vec();
+    args.extend_from_slice(&[
+        "--tension",
+        "3000N/m",
+        "--snr",
+        "35",
+        "--air",
+        "--seed",
+        "21",
+    ]);
+    let wav = synth(dir.path(), "air.wav", &args);
+    let mut fit_args = vec![wav.to_str().unwrap()];
+    fit_args.extend_from_slice(&geo);
+    let ideal = fit_json(&fit_args);
+    assert!(ideal["tension"]["value"].as_f64().unwrap() < 2400.0);
+    assert_ne!(ideal["quality"]["grade"], "sound");
+    fit_args.extend_from_slice(&[
+        "--model",
+        "air",
+        "--areal-density-u",
+        "0.005kg/m2",
+        "--size-u",
+        "0.5mm",
+    ]);
+    let air = fit_json(&fit_args);
+    check_tension(&air, 3000.0, 0.005);
+    assert_eq!(air["quality"]["grade"], "sound");
+    // The budget: σ known to 0.005/0.2641 = 1.9 % dominates, so
+    // u_c/T ≈ 1.9 % and U = 2·u_c.
+    let b = &air["budget"];
+    let uc = b["combined_standard_uncertainty_n_per_m"].as_f64().unwrap();
+    let u = b["expanded_uncertainty_n_per_m"].as_f64().unwrap();
+    assert!((u - 2.0 * uc).abs() < 1e-9);
+    assert!((uc / 3000.0 - 0.019).abs() < 0.003, "{uc}");
+    assert_eq!(b["rows"].as_array().unwrap().len(), 3);
+}

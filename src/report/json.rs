@@ -17,6 +17,7 @@
 //! - `rms_residual_cents`, `quality` {`grade`, `reasons`}
 //! - `fit`: {`modes_used`, `dof`, `iterations`, `stop_reason`, `uncertainty_method`}
 //! - `matching`: {`hypotheses`, `ambiguous`, `rival_wave_speed_m_per_s`}
+//! - `budget` (GUM): {`tension_n_per_m`, `rows`: [{`source`, `estimate`, `standard_uncertainty`, `sensitivity`, `contribution_n_per_m`}], `combined_standard_uncertainty_n_per_m`, `coverage_factor`, `expanded_uncertainty_n_per_m`} or null without areal density
 //! - `warnings`: [{`kind`, `message`, …}]
 //! - `caution`: the safety note.
 
@@ -160,6 +161,7 @@ pub fn fit_record(file: &Path, m: &Measurement, unit: TensionUnit) -> Value {
             "ambiguous": x.is_ambiguous(),
             "rival_wave_speed_m_per_s": x.rival.map(|r| r.0),
         })),
+        "budget": serde_json::to_value(&m.budget).unwrap_or(Value::Null),
         "warnings": warnings_json(&m.warnings),
         "caution": CAUTION,
     })

@@ -95,6 +95,25 @@ pub fn fit_report(
             format!(": {}", m.quality.reasons.join("; "))
         }
     );
+    if let Some(b) = &m.budget {
+        let _ = writeln!(s, "## Uncertainty budget (GUM)\n");
+        let _ = writeln!(s, "| input | estimate | standard uncertainty | sensitivity | contribution N/m |\n|---|---|---|---|---:|");
+        for r in &b.rows {
+            let _ = writeln!(
+                s,
+                "| {} | {} | {} | {} | {:.4} |",
+                r.source, r.estimate, r.standard_uncertainty, r.sensitivity, r.contribution_n_per_m
+            );
+        }
+        let _ = writeln!(
+            s,
+            "| **combined** | {:.4} N/m | **u_c = {:.4} N/m** | | |\n\nExpanded uncertainty U = k·u_c = **{:.3} N/m** (k = {}, about 95 % coverage). Law of propagation of uncertainty, JCGM 100:2008 eq. 10, inputs uncorrelated.\n",
+            b.tension_n_per_m,
+            b.combined_standard_uncertainty_n_per_m,
+            b.expanded_uncertainty_n_per_m,
+            b.coverage_factor
+        );
+    }
     if let Some(p) = picture {
         let _ = writeln!(s, "![spectrum with predicted modes]({p})\n");
     }

@@ -77,6 +77,21 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
             } else {
                 let _ = writeln!(s, "tension      – (give --areal-density to get N/m)");
             }
+            if let Some(b) = &m.budget {
+                let k = unit.newtons_per_meter();
+                let _ = writeln!(
+                    s,
+                    "  with inputs {} (u_c, GUM);  U = {} {} (k = {})",
+                    pm(
+                        b.tension_n_per_m / k,
+                        b.combined_standard_uncertainty_n_per_m / k,
+                        unit.symbol()
+                    ),
+                    crate::units::sig(b.expanded_uncertainty_n_per_m / k, 3),
+                    unit.symbol(),
+                    b.coverage_factor
+                );
+            }
             let _ = writeln!(
                 s,
                 "T/σ          {}",
