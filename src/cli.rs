@@ -46,7 +46,7 @@ pub enum Command {
         /// Also fit the rectangle's effective height (width as given).
         #[arg(long)]
         free_aspect: bool,
-        /// Model: isotropic (default), free-aspect, air (air-loaded membrane).
+        /// Model: isotropic (default), free-aspect, biaxial (rectangle, Tx and Ty), air (air-loaded membrane).
         #[arg(long)]
         model: Option<String>,
         /// Unit for the printed tension: N/m, N/cm, kN/m, lbf/in.
@@ -137,6 +137,9 @@ pub enum Command {
         /// Lower the modes by air loading (a light film in air).
         #[arg(long)]
         air: bool,
+        /// Tension along y (rectangle; --tension is then along x).
+        #[arg(long)]
+        tension_y: Option<String>,
     },
     /// Fit every recording in the demo folder and write the reports.
     Demo {
@@ -294,7 +297,13 @@ pub fn fit_options(
     input: &InputArgs,
 ) -> Result<FitOptions> {
     let model = match (free_aspect, model) {
-        (true, None) | (_, Some("free-aspect")) => FitModel::FreeAspect,
+        (true, None) | (false, Some("free-aspect")) => FitModel::FreeAspect,
+        (false, Some("biaxial")) => FitModel::Biaxial,
+        (true, Some("biaxial")) => {
+            return Err(TonusError::Panel(
+                "biaxial tension and a free aspect ratio cannot be fitted together: on a rectangle the tensions and the sides enter only as Tx/(σ·Lx²) and Ty/(σ·Ly²); measure the sides and fit --model biaxial, or assume isotropic tension and use --free-aspect".into(),
+            ))
+        }
         (false, None) | (false, Some("isotropic")) => FitModel::Isotropic,
         (false, Some("air")) | (false, Some("air-loaded")) => FitModel::AirLoaded,
         (true, Some(m)) => {
@@ -306,7 +315,7 @@ pub fn fit_options(
             return Err(TonusError::BadQuantity {
                 key: "--model".into(),
                 value: other.into(),
-                expected: "isotropic, free-aspect or air".into(),
+                expected: "isotropic, free-aspect, biaxial or air".into(),
                 example: "air".into(),
             })
         }
@@ -341,6 +350,7 @@ pub fn synth_config(
     gain: f64,
     seed: u64,
     air: bool,
+    tension_y: Option<&str>,
 ) -> Result<SynthConfig> {
     let p = panel.to_panel()?;
     let density = p.areal_density.ok_or_else(|| {
@@ -413,6 +423,9 @@ pub fn synth_config(
     cfg.gain_db = gain;
     cfg.seed = seed;
     cfg.air_loaded = air;
+    cfg.tension_y = tension_y
+        .map(|t| units::parse_tension("--tension-y", t))
+        .transpose()?;
     Ok(cfg)
 }
 

@@ -73,6 +73,8 @@ pub enum FitModel {
     Isotropic,
     /// Wave speed and the rectangle's effective height (width as given).
     FreeAspect,
+    /// Tensions along x and y (rectangle), f² = (Tx·(m/Lx)² + Ty·(n/Ly)²)/(4σ).
+    Biaxial,
     /// Wave speed with the air-loading correction of [`crate::airload`]
     /// (needs the areal density).
     AirLoaded,
@@ -106,6 +108,21 @@ pub struct FitResult {
     pub stop_reason: String,
     /// How the uncertainty was obtained.
     pub uncertainty_method: String,
+    /// For the two-term fits (f² = A·m² + B·n²): (ln A, ln B) and their
+    /// covariance [var ln A, cov, var ln B], A and B in Hz².
+    pub two_term: Option<([f64; 2], [f64; 3])>,
+}
+
+/// Frequency the fitted model predicts for a line of factor g whose first
+/// mode is (m, n): √(A·m² + B·n²) for the two-term fits, c·g otherwise.
+pub fn predicted_hz(f: &FitResult, factor: f64, mode: (u32, u32)) -> f64 {
+    match f.two_term {
+        Some((p, _)) => {
+            let (m, n) = (mode.0 as f64, mode.1 as f64);
+            (p[0].exp() * m * m + p[1].exp() * n * n).sqrt()
+        }
+        None => f.wave_speed.value * factor,
+    }
 }
 
 fn ln_resid(o: &Observation, c: f64) -> f64 {
@@ -191,6 +208,7 @@ pub fn fit_isotropic(obs: &[Observation]) -> Option<FitResult> {
         iterations: 1,
         stop_reason: "closed form (linear in ln c)".into(),
         uncertainty_method: method,
+        two_term: None,
     })
 }
 
@@ -323,6 +341,7 @@ pub fn fit_free_aspect(obs: &[Observation], width_m: f64) -> Option<FitResult> {
         iterations: report.number_of_evaluations,
         stop_reason: format!("{:?}", report.termination),
         uncertainty_method: format!("s²(JᵀJ)⁻¹ at the solution, {n} modes, 2 parameters (Type A)"),
+        two_term: Some(([la, lb], [cov[(0, 0)], cov[(0, 1)], cov[(1, 1)]])),
     })
 }
 

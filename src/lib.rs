@@ -8,6 +8,7 @@
 
 pub mod airload;
 pub mod bessel;
+pub mod biaxial;
 pub mod budget;
 pub mod cli;
 pub mod commands;

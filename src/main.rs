@@ -75,6 +75,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             gain,
             seed,
             air,
+            tension_y,
         } => {
             let cfg = cli::synth_config(
                 &panel,
@@ -93,6 +94,7 @@ fn run(cli: Cli) -> Result<Outcome> {
                 gain,
                 seed,
                 air,
+                tension_y.as_deref(),
             )?;
             let (b, float) = cli::sample_format(&bits)?;
             commands::synth(&cfg, &output, b, float)

@@ -259,7 +259,7 @@ fn line_spacing_cents(lines: &[ModeLine], band_cents: f64) -> Vec<f64> {
 /// Nearest-line assignment at wave speed c. A line takes at most one
 /// partial per physical mode it stands for (a split pair takes two); the
 /// closest partials win.
-fn assign(partials: &[Partial], lines: &[ModeLine], c: f64) -> Vec<Assignment> {
+pub(crate) fn assign(partials: &[Partial], lines: &[ModeLine], c: f64) -> Vec<Assignment> {
     let mut cands: Vec<Assignment> = Vec::new();
     for (i, p) in partials.iter().enumerate() {
         let g = p.frequency_hz / c;

@@ -108,6 +108,8 @@ pub struct Measurement {
     pub duration_s: f64,
     /// Uncertainty budget of the tension (GUM), when σ is known.
     pub budget: Option<crate::budget::Budget>,
+    /// Tensions along the two axes, for the biaxial model.
+    pub biaxial: Option<crate::biaxial::Biaxial>,
 }
 
 /// Predicted lines for a panel up to at least `g_max`, from a small
@@ -141,6 +143,64 @@ fn cached_lines(panel: &Panel, g_max: f64) -> Vec<ModeLine> {
     lines
 }
 
+/// Iterates assignment and the two-term fit f² = A·m² + B·n²: every label
+/// of every line becomes its own line at the frequency the current fit
+/// predicts (a biaxial membrane splits the (m,n)/(n,m) pairs), partials are
+/// reassigned to the nearest, and A, B refitted, four times.
+fn biaxial_relabel(
+    parts: &[crate::partials::Partial],
+    lines: &[ModeLine],
+    m: Matching,
+) -> (Vec<ModeLine>, Matching) {
+    let c_ref = m.wave_speed_m_per_s;
+    let mut current_lines: Vec<ModeLine> = lines.to_vec();
+    let mut current = m;
+    for _ in 0..4 {
+        let obs: Vec<Observation> = current
+            .assignments
+            .iter()
+            .map(|a| Observation {
+                frequency_hz: parts[a.partial].frequency_hz,
+                factor: current_lines[a.line].factor,
+                mode: current_lines[a.line].labels[0],
+            })
+            .collect();
+        let Some(f) = fit::fit_free_aspect(&obs, 1.0) else {
+            break;
+        };
+        let Some((p, _)) = f.two_term else {
+            break;
+        };
+        let (a, b) = (p[0].exp(), p[1].exp());
+        let mut split: Vec<ModeLine> = lines
+            .iter()
+            .flat_map(|l| {
+                l.labels.iter().map(move |&(mm, nn)| ModeLine {
+                    labels: vec![(mm, nn)],
+                    factor: (a * (mm as f64).powi(2) + b * (nn as f64).powi(2)).sqrt() / c_ref,
+                    degeneracy: 1,
+                    coupling: l.coupling,
+                })
+            })
+            .collect();
+        split.sort_by(|x, y| x.factor.total_cmp(&y.factor));
+        let assignments = matching::assign(parts, &split, c_ref);
+        let mut used = vec![false; parts.len()];
+        for a in &assignments {
+            used[a.partial] = true;
+        }
+        current = Matching {
+            wave_speed_m_per_s: c_ref,
+            unmatched: (0..parts.len()).filter(|&i| !used[i]).collect(),
+            assignments,
+            missing: Vec::new(),
+            ..current
+        };
+        current_lines = split;
+    }
+    (current_lines, current)
+}
+
 /// Analyses a recording and fits the panel's model to it.
 ///
 /// # Errors
@@ -161,6 +221,11 @@ pub fn measure_with(
     if opts.model == FitModel::AirLoaded && panel.areal_density.is_none() {
         return Err(TonusError::Panel(
             "--model air needs --areal-density (air loading depends on it)".into(),
+        ));
+    }
+    if opts.model == FitModel::Biaxial && !matches!(panel.shape, Shape::Rectangle { .. }) {
+        return Err(TonusError::Panel(
+            "--model biaxial needs a rectangle; for uneven tension on a circle, resolved mode pairs are needed".into(),
         ));
     }
     if opts.model == FitModel::FreeAspect && !matches!(panel.shape, Shape::Rectangle { .. }) {
@@ -197,7 +262,17 @@ pub fn measure_with(
         &lines,
         (opts.analysis.min_frequency_hz, f_hi.max(1.0)),
     );
+    // Biaxial tension moves the pure-m and pure-n modes apart by more than
+    // the matching gate: relabel against the biaxial model itself.
+    let (lines, matching) = match (opts.model, matching) {
+        (FitModel::Biaxial, Some(m)) => {
+            let (l, mm) = biaxial_relabel(parts, &lines, m);
+            (l, Some(mm))
+        }
+        (_, other) => (lines, other),
+    };
     let mut fit_result = None;
+    let mut biaxial: Option<crate::biaxial::Biaxial> = None;
     let mut modes = Vec::new();
     let mut missing = Vec::new();
     let mut unmatched: Vec<usize> = (0..parts.len()).collect();
@@ -238,7 +313,7 @@ pub fn measure_with(
         };
         let fit_obs: Vec<Observation> = fit_idx.iter().map(|&i| obs[i].clone()).collect();
         fit_result = match (opts.model, panel.shape) {
-            (FitModel::FreeAspect, Shape::Rectangle { width, .. }) => {
+            (FitModel::FreeAspect | FitModel::Biaxial, Shape::Rectangle { width, .. }) => {
                 fit::fit_free_aspect(&fit_obs, width.0).or_else(|| fit::fit_isotropic(&fit_obs))
             }
             _ => fit::fit_isotropic(&fit_obs),
@@ -248,20 +323,41 @@ pub fn measure_with(
             if opts.model == FitModel::AirLoaded {
                 f.model = FitModel::AirLoaded;
             }
-            let c = f.wave_speed.value;
-            let ly = f.effective_height_m.map(|e| e.value);
+            if let (FitModel::Biaxial, Some((p, cov)), Shape::Rectangle { width, height }) =
+                (opts.model, f.two_term, panel.shape)
+            {
+                let b = crate::biaxial::from_two_term(p, cov, width.0, height.0, None);
+                f.model = FitModel::Biaxial;
+                f.effective_height_m = None;
+                // The isotropic equivalent: c² = mean of Tx/σ and Ty/σ.
+                let c2 = 0.5 * (b.tx_over_sigma.value + b.ty_over_sigma.value);
+                let u_c2 = 0.5
+                    * (b.tx_over_sigma.standard_uncertainty.powi(2)
+                        + b.ty_over_sigma.standard_uncertainty.powi(2)
+                        + 2.0
+                            * b.correlation
+                            * b.tx_over_sigma.standard_uncertainty
+                            * b.ty_over_sigma.standard_uncertainty)
+                        .max(0.0)
+                        .sqrt();
+                f.wave_speed = fit::Estimate {
+                    value: c2.sqrt(),
+                    standard_uncertainty: 0.5 * u_c2 / c2.sqrt(),
+                };
+                biaxial = Some(crate::biaxial::from_two_term(
+                    p,
+                    cov,
+                    width.0,
+                    height.0,
+                    panel.areal_density.map(|s| s.0),
+                ));
+            }
+            let fr: &FitResult = f;
             f.residuals_cents = obs
                 .iter()
                 .map(|o| {
-                    let pred = match (ly, panel.shape) {
-                        (Some(ly), Shape::Rectangle { width, .. }) => {
-                            crate::membrane::rect_mode_frequency_hz(
-                                width.0, ly, c, o.mode.0, o.mode.1,
-                            )
-                        }
-                        _ => c * o.factor,
-                    };
-                    fit::CENTS_PER_LN * (o.frequency_hz / pred).ln()
+                    fit::CENTS_PER_LN
+                        * (o.frequency_hz / fit::predicted_hz(fr, o.factor, o.mode)).ln()
                 })
                 .collect();
             f.outliers = f.outliers.iter().map(|&k| fit_idx[k]).collect();
@@ -269,22 +365,10 @@ pub fn measure_with(
         }
         if let Some(f) = &fit_result {
             let c = f.wave_speed.value;
-            let height = f.effective_height_m.map(|e| e.value);
             for (i, a) in m.assignments.iter().enumerate() {
                 let line = &lines[a.line];
                 let p = &parts[a.partial];
-                let predicted = match (height, panel.shape) {
-                    (Some(ly), Shape::Rectangle { width, .. }) => {
-                        crate::membrane::rect_mode_frequency_hz(
-                            width.0,
-                            ly,
-                            c,
-                            line.labels[0].0,
-                            line.labels[0].1,
-                        )
-                    }
-                    _ => c * line.factor,
-                };
+                let predicted = fit::predicted_hz(f, line.factor, line.labels[0]);
                 modes.push(ModeRow {
                     m: line.labels[0].0,
                     n: line.labels[0].1,
@@ -360,7 +444,9 @@ pub fn measure_with(
         None => (None, None),
     };
     let budget = match (&fit_result, tension, panel.areal_density) {
-        (Some(f), Some(t), Some(s)) if f.model != FitModel::FreeAspect => {
+        (Some(f), Some(t), Some(s))
+            if matches!(f.model, FitModel::Isotropic | FitModel::AirLoaded) =>
+        {
             let used: Vec<usize> = (0..modes.len())
                 .filter(|&i| !modes[i].outlier && !modes[i].crowded)
                 .collect();
@@ -410,6 +496,7 @@ pub fn measure_with(
         quality: q,
         warnings,
         budget,
+        biaxial,
         duration_s: rec.duration_s(),
     })
 }

@@ -93,6 +93,9 @@ pub struct SynthConfig {
     pub max_frequency_hz: f64,
     /// Lower every mode by the air-loading factor of [`crate::airload`].
     pub air_loaded: bool,
+    /// Tension along y when it differs from `tension` (taken along x);
+    /// rectangle only.
+    pub tension_y: Option<NewtonsPerMeter>,
 }
 
 impl SynthConfig {
@@ -118,6 +121,7 @@ impl SynthConfig {
             seed: 1,
             max_frequency_hz: 6000.0,
             air_loaded: false,
+            tension_y: None,
         }
     }
 }
@@ -219,10 +223,21 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
     // (frequency, amplitude, amplitude decay rate 1/τ)
     let mut comps: Vec<(f64, f64, f64)> = Vec::new();
     for line in &lines {
-        let f = if cfg.air_loaded {
-            line.factor * c * crate::airload::loading_factor(line.factor, cfg.areal_density.0)
-        } else {
-            line.factor * c
+        let f = match (cfg.tension_y, cfg.shape) {
+            // Biaxial: f² = (Tx·(m/Lx)² + Ty·(n/Ly)²)/(4σ) for the first
+            // mode of the line (an (m,n)/(n,m) pair of a square splits; only
+            // its first member is sounded here).
+            (Some(ty), Shape::Rectangle { width, height }) => {
+                let (m, n) = line.labels[0];
+                ((cfg.tension.0 * (m as f64 / width.0).powi(2)
+                    + ty.0 * (n as f64 / height.0).powi(2))
+                    / (4.0 * cfg.areal_density.0))
+                    .sqrt()
+            }
+            _ if cfg.air_loaded => {
+                line.factor * c * crate::airload::loading_factor(line.factor, cfg.areal_density.0)
+            }
+            _ => line.factor * c,
         };
         let mut a = 0.0;
         for &(m, nn) in &line.labels {

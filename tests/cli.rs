@@ -521,3 +521,64 @@ fn air_loaded_head_needs_the_air_model() {
     assert!((uc / 3000.0 - 0.019).abs() < 0.003, "{uc}");
     assert_eq!(b["rows"].as_array().unwrap().len(), 3);
 }
+
+#[test]
+fn biaxial_mesh_reads_both_thread_directions() {
+    // A screen stretched 10 % harder along x: 21 and 19 N/cm.
+    let dir = tempfile::tempdir().unwrap();
+    let geo = [
+        "--width",
+        "500mm",
+        "--height",
+        "400mm",
+        "--areal-density",
+        "40g/m2",
+        "--tap-at",
+        "0.31,0.27",
+    ];
+    let mut args: Vec<&str> = geo.to_vec();
+    args.extend_from_slice(&[
+        "--tension",
+        "21N/cm",
+        "--tension-y",
+        "19N/cm",
+        "--snr",
+        "30",
+        "--seed",
+        "8",
+    ]);
+    let wav = synth(dir.path(), "mesh.wav", &args);
+    let mut fit_args = vec![wav.to_str().unwrap()];
+    fit_args.extend_from_slice(&geo);
+    fit_args.extend_from_slice(&["--model", "biaxial"]);
+    let v = fit_json(&fit_args);
+    let b = &v["biaxial"];
+    let tx = b["tension_x"]["value"].as_f64().unwrap();
+    let ty = b["tension_y"]["value"].as_f64().unwrap();
+    assert!((tx / 2100.0 - 1.0).abs() < 0.01, "{tx}");
+    assert!((ty / 1900.0 - 1.0).abs() < 0.01, "{ty}");
+    let eps = b["anisotropy_percent"]["value"].as_f64().unwrap();
+    assert!((eps - 10.0).abs() < 0.5, "{eps}");
+    // The relabelled solution is reported too.
+    assert_eq!(b["swapped"].as_array().unwrap().len(), 2);
+}
+
+#[test]
+fn biaxial_with_free_aspect_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let geo = [
+        "--width",
+        "500mm",
+        "--height",
+        "400mm",
+        "--areal-density",
+        "40g/m2",
+    ];
+    let mut args: Vec<&str> = geo.to_vec();
+    args.extend_from_slice(&["--tension", "2000N/m"]);
+    let wav = synth(dir.path(), "m.wav", &args);
+    let mut fit_args = vec!["fit", wav.to_str().unwrap()];
+    fit_args.extend_from_slice(&geo);
+    fit_args.extend_from_slice(&["--model", "biaxial", "--free-aspect"]);
+    expect_clean_error(&fit_args, "cannot be fitted together");
+}

@@ -95,6 +95,31 @@ pub fn fit_report(
             format!(": {}", m.quality.reasons.join("; "))
         }
     );
+    if let Some(b) = &m.biaxial {
+        let k = unit.newtons_per_meter();
+        let _ = writeln!(s, "## Tension along the two axes\n");
+        if let (Some(tx), Some(ty)) = (b.tension_x, b.tension_y) {
+            let _ = writeln!(
+                s,
+                "- along the width (x): **{}**",
+                pm(tx.value / k, tx.standard_uncertainty / k, unit.symbol())
+            );
+            let _ = writeln!(
+                s,
+                "- along the height (y): **{}**",
+                pm(ty.value / k, ty.standard_uncertainty / k, unit.symbol())
+            );
+        }
+        let _ = writeln!(
+            s,
+            "- Tx/Ty = {}, anisotropy {}, correlation of Tx and Ty {:.2}\n- one tap cannot tell the axes apart by itself: relabelling every (m,n) as (n,m) gives Tx = {:.1}, Ty = {:.1} (same units as σ·c²) and fits equally well\n",
+            pm(b.ratio.value, b.ratio.standard_uncertainty, ""),
+            pm(b.anisotropy_percent.value, b.anisotropy_percent.standard_uncertainty, "%"),
+            b.correlation,
+            b.swapped.0 / k,
+            b.swapped.1 / k
+        );
+    }
     if let Some(b) = &m.budget {
         let _ = writeln!(s, "## Uncertainty budget (GUM)\n");
         let _ = writeln!(s, "| input | estimate | standard uncertainty | sensitivity | contribution N/m |\n|---|---|---|---|---:|");

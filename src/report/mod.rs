@@ -92,18 +92,7 @@ pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::Sp
             }
             let hit = assigned.iter().find(|(line, _)| *line == j);
             lines.push(png::PlotLine {
-                frequency_hz: match (f.effective_height_m, m.panel.shape) {
-                    (Some(ly), crate::membrane::Shape::Rectangle { width, .. }) => {
-                        crate::membrane::rect_mode_frequency_hz(
-                            width.0,
-                            ly.value,
-                            c,
-                            l.labels[0].0,
-                            l.labels[0].1,
-                        )
-                    }
-                    _ => fr,
-                },
+                frequency_hz: crate::fit::predicted_hz(f, l.factor, l.labels[0]),
                 label: l.label_text(),
                 matched: hit.is_some(),
                 residual_cents: hit.map(|h| h.1),

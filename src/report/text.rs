@@ -92,6 +92,28 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                     b.coverage_factor
                 );
             }
+            if let Some(b) = &m.biaxial {
+                let k = unit.newtons_per_meter();
+                if let (Some(tx), Some(ty)) = (b.tension_x, b.tension_y) {
+                    let _ = writeln!(
+                        s,
+                        "  along x      {}\n  along y      {}",
+                        pm(tx.value / k, tx.standard_uncertainty / k, unit.symbol()),
+                        pm(ty.value / k, ty.standard_uncertainty / k, unit.symbol())
+                    );
+                }
+                let _ = writeln!(
+                    s,
+                    "  Tx/Ty        {}  anisotropy {}  correlation {:.2}",
+                    pm(b.ratio.value, b.ratio.standard_uncertainty, ""),
+                    pm(
+                        b.anisotropy_percent.value,
+                        b.anisotropy_percent.standard_uncertainty,
+                        "%"
+                    ),
+                    b.correlation
+                );
+            }
             let _ = writeln!(
                 s,
                 "T/σ          {}",
