@@ -46,7 +46,7 @@ pub enum Command {
         /// Also fit the rectangle's effective height (width as given).
         #[arg(long)]
         free_aspect: bool,
-        /// Model: isotropic (default), free-aspect, biaxial (rectangle, Tx and Ty), air (air-loaded membrane).
+        /// Model: isotropic (default), free-aspect, biaxial (rectangle, Tx and Ty), stiff (rectangle: tension and bending stiffness), air (air-loaded membrane).
         #[arg(long)]
         model: Option<String>,
         /// Unit for the printed tension: N/m, N/cm, kN/m, lbf/in.
@@ -140,6 +140,9 @@ pub enum Command {
         /// Tension along y (rectangle; --tension is then along x).
         #[arg(long)]
         tension_y: Option<String>,
+        /// Bending stiffness D in N·m (rectangle, simply supported plate), e.g. 0.02.
+        #[arg(long)]
+        bending_stiffness: Option<f64>,
     },
     /// Fit every recording in the demo folder and write the reports.
     Demo {
@@ -299,6 +302,7 @@ pub fn fit_options(
     let model = match (free_aspect, model) {
         (true, None) | (false, Some("free-aspect")) => FitModel::FreeAspect,
         (false, Some("biaxial")) => FitModel::Biaxial,
+        (false, Some("stiff")) | (false, Some("plate")) => FitModel::Stiff,
         (true, Some("biaxial")) => {
             return Err(TonusError::Panel(
                 "biaxial tension and a free aspect ratio cannot be fitted together: on a rectangle the tensions and the sides enter only as Tx/(σ·Lx²) and Ty/(σ·Ly²); measure the sides and fit --model biaxial, or assume isotropic tension and use --free-aspect".into(),
@@ -315,7 +319,7 @@ pub fn fit_options(
             return Err(TonusError::BadQuantity {
                 key: "--model".into(),
                 value: other.into(),
-                expected: "isotropic, free-aspect, biaxial or air".into(),
+                expected: "isotropic, free-aspect, biaxial, stiff or air".into(),
                 example: "air".into(),
             })
         }
@@ -351,6 +355,7 @@ pub fn synth_config(
     seed: u64,
     air: bool,
     tension_y: Option<&str>,
+    bending_stiffness: Option<f64>,
 ) -> Result<SynthConfig> {
     let p = panel.to_panel()?;
     let density = p.areal_density.ok_or_else(|| {
@@ -423,6 +428,16 @@ pub fn synth_config(
     cfg.gain_db = gain;
     cfg.seed = seed;
     cfg.air_loaded = air;
+    if let Some(d) = bending_stiffness {
+        if !(d > 0.0 && d.is_finite()) {
+            return Err(TonusError::OutOfRange {
+                key: "--bending-stiffness".into(),
+                value: d.to_string(),
+                why: "it must be a positive number of N·m".into(),
+            });
+        }
+    }
+    cfg.bending_stiffness = bending_stiffness;
     cfg.tension_y = tension_y
         .map(|t| units::parse_tension("--tension-y", t))
         .transpose()?;

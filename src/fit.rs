@@ -75,6 +75,9 @@ pub enum FitModel {
     FreeAspect,
     /// Tensions along x and y (rectangle), f² = (Tx·(m/Lx)² + Ty·(n/Ly)²)/(4σ).
     Biaxial,
+    /// Tension and bending stiffness of a simply supported rectangular
+    /// plate ([`crate::plate`]).
+    Stiff,
     /// Wave speed with the air-loading correction of [`crate::airload`]
     /// (needs the areal density).
     AirLoaded,
@@ -111,11 +114,16 @@ pub struct FitResult {
     /// For the two-term fits (f² = A·m² + B·n²): (ln A, ln B) and their
     /// covariance [var ln A, cov, var ln B], A and B in Hz².
     pub two_term: Option<([f64; 2], [f64; 3])>,
+    /// For the plate model: (T/σ, D/σ, Lx, Ly).
+    pub plate: Option<(f64, f64, f64, f64)>,
 }
 
 /// Frequency the fitted model predicts for a line of factor g whose first
 /// mode is (m, n): √(A·m² + B·n²) for the two-term fits, c·g otherwise.
 pub fn predicted_hz(f: &FitResult, factor: f64, mode: (u32, u32)) -> f64 {
+    if let Some((p, q, lx, ly)) = f.plate {
+        return crate::plate::frequency_hz(p, q, crate::plate::k_squared(lx, ly, mode.0, mode.1));
+    }
     match f.two_term {
         Some((p, _)) => {
             let (m, n) = (mode.0 as f64, mode.1 as f64);
@@ -209,6 +217,7 @@ pub fn fit_isotropic(obs: &[Observation]) -> Option<FitResult> {
         stop_reason: "closed form (linear in ln c)".into(),
         uncertainty_method: method,
         two_term: None,
+        plate: None,
     })
 }
 
@@ -342,6 +351,7 @@ pub fn fit_free_aspect(obs: &[Observation], width_m: f64) -> Option<FitResult> {
         stop_reason: format!("{:?}", report.termination),
         uncertainty_method: format!("s²(JᵀJ)⁻¹ at the solution, {n} modes, 2 parameters (Type A)"),
         two_term: Some(([la, lb], [cov[(0, 0)], cov[(0, 1)], cov[(1, 1)]])),
+        plate: None,
     })
 }
 

@@ -21,6 +21,7 @@ pub mod membrane;
 pub mod panel;
 pub mod partials;
 pub mod pipeline;
+pub mod plate;
 pub mod quality;
 pub mod recording;
 pub mod report;

@@ -76,6 +76,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             seed,
             air,
             tension_y,
+            bending_stiffness,
         } => {
             let cfg = cli::synth_config(
                 &panel,
@@ -95,6 +96,7 @@ fn run(cli: Cli) -> Result<Outcome> {
                 seed,
                 air,
                 tension_y.as_deref(),
+                bending_stiffness,
             )?;
             let (b, float) = cli::sample_format(&bits)?;
             commands::synth(&cfg, &output, b, float)

@@ -110,6 +110,8 @@ pub struct Measurement {
     pub budget: Option<crate::budget::Budget>,
     /// Tensions along the two axes, for the biaxial model.
     pub biaxial: Option<crate::biaxial::Biaxial>,
+    /// Tension and bending stiffness, for the plate model.
+    pub plate: Option<crate::plate::PlateFit>,
 }
 
 /// Predicted lines for a panel up to at least `g_max`, from a small
@@ -143,41 +145,56 @@ fn cached_lines(panel: &Panel, g_max: f64) -> Vec<ModeLine> {
     lines
 }
 
-/// Iterates assignment and the two-term fit f² = A·m² + B·n²: every label
-/// of every line becomes its own line at the frequency the current fit
-/// predicts (a biaxial membrane splits the (m,n)/(n,m) pairs), partials are
-/// reassigned to the nearest, and A, B refitted, four times.
-fn biaxial_relabel(
+/// Upper ends of the relabelling bands, in multiples of the lowest
+/// assigned partial.
+const RELABEL_BANDS: [f64; 6] = [3.0, 4.0, 6.0, 9.0, 14.0, f64::INFINITY];
+
+/// A model's prediction f(m, n) in Hz, refitted from observations.
+type Predictor = Box<dyn Fn(u32, u32) -> f64>;
+
+/// Iterates assignment and a model fit whose modes no longer follow the
+/// isotropic pattern (biaxial tension splits the (m,n)/(n,m) pairs and
+/// moves pure-m and pure-n modes apart; stiffness raises the high modes):
+/// every label of every line becomes its own line at the frequency the
+/// current fit predicts, partials are reassigned to the nearest, and the
+/// model refitted, over a band of partials that grows from the lowest
+/// modes to all of them.
+fn relabel(
     parts: &[crate::partials::Partial],
     lines: &[ModeLine],
     m: Matching,
+    refit: impl Fn(&[Observation]) -> Option<Predictor>,
 ) -> (Vec<ModeLine>, Matching) {
     let c_ref = m.wave_speed_m_per_s;
     let mut current_lines: Vec<ModeLine> = lines.to_vec();
     let mut current = m;
-    for _ in 0..4 {
+    let f_low = current
+        .assignments
+        .first()
+        .map(|a| parts[a.partial].frequency_hz)
+        .unwrap_or(0.0);
+    // The band grows from the low modes, which the isotropic start labels
+    // best, to all of them.
+    for growth in RELABEL_BANDS {
         let obs: Vec<Observation> = current
             .assignments
             .iter()
+            .filter(|a| parts[a.partial].frequency_hz <= f_low * growth)
             .map(|a| Observation {
                 frequency_hz: parts[a.partial].frequency_hz,
                 factor: current_lines[a.line].factor,
                 mode: current_lines[a.line].labels[0],
             })
             .collect();
-        let Some(f) = fit::fit_free_aspect(&obs, 1.0) else {
+        let Some(predict) = refit(&obs) else {
             break;
         };
-        let Some((p, _)) = f.two_term else {
-            break;
-        };
-        let (a, b) = (p[0].exp(), p[1].exp());
         let mut split: Vec<ModeLine> = lines
             .iter()
             .flat_map(|l| {
-                l.labels.iter().map(move |&(mm, nn)| ModeLine {
+                l.labels.iter().map(|&(mm, nn)| ModeLine {
                     labels: vec![(mm, nn)],
-                    factor: (a * (mm as f64).powi(2) + b * (nn as f64).powi(2)).sqrt() / c_ref,
+                    factor: predict(mm, nn) / c_ref,
                     degeneracy: 1,
                     coupling: l.coupling,
                 })
@@ -194,11 +211,41 @@ fn biaxial_relabel(
             unmatched: (0..parts.len()).filter(|&i| !used[i]).collect(),
             assignments,
             missing: Vec::new(),
+            // The rival was a rival of the isotropic start; the relabelled
+            // fit answers to its own residuals.
+            rival: None,
             ..current
         };
         current_lines = split;
     }
     (current_lines, current)
+}
+
+/// The biaxial predictor: f² = A·m² + B·n² from the two-term fit.
+fn biaxial_predictor(obs: &[Observation]) -> Option<Predictor> {
+    let (p, _) = fit::fit_free_aspect(obs, 1.0)?.two_term?;
+    let (a, b) = (p[0].exp(), p[1].exp());
+    Some(Box::new(move |m, n| {
+        (a * (m as f64).powi(2) + b * (n as f64).powi(2)).sqrt()
+    }))
+}
+
+/// The prestressed-plate predictor for a rectangle of sides lx, ly.
+fn plate_predictor(obs: &[Observation], lx: f64, ly: f64) -> Option<Predictor> {
+    let pairs: Vec<(f64, f64)> = obs
+        .iter()
+        .map(|o| {
+            (
+                o.frequency_hz,
+                crate::plate::k_squared(lx, ly, o.mode.0, o.mode.1),
+            )
+        })
+        .collect();
+    let f = crate::plate::fit(&pairs, None)?;
+    let (p, q) = (f.t_over_sigma.value, f.d_over_sigma.value);
+    Some(Box::new(move |m, n| {
+        crate::plate::frequency_hz(p, q, crate::plate::k_squared(lx, ly, m, n))
+    }))
 }
 
 /// Analyses a recording and fits the panel's model to it.
@@ -221,6 +268,11 @@ pub fn measure_with(
     if opts.model == FitModel::AirLoaded && panel.areal_density.is_none() {
         return Err(TonusError::Panel(
             "--model air needs --areal-density (air loading depends on it)".into(),
+        ));
+    }
+    if opts.model == FitModel::Stiff && !matches!(panel.shape, Shape::Rectangle { .. }) {
+        return Err(TonusError::Panel(
+            "--model stiff is the simply supported rectangular plate; it needs a rectangle".into(),
         ));
     }
     if opts.model == FitModel::Biaxial && !matches!(panel.shape, Shape::Rectangle { .. }) {
@@ -264,15 +316,20 @@ pub fn measure_with(
     );
     // Biaxial tension moves the pure-m and pure-n modes apart by more than
     // the matching gate: relabel against the biaxial model itself.
-    let (lines, matching) = match (opts.model, matching) {
-        (FitModel::Biaxial, Some(m)) => {
-            let (l, mm) = biaxial_relabel(parts, &lines, m);
+    let (lines, matching) = match (opts.model, matching, panel.shape) {
+        (FitModel::Biaxial, Some(m), _) => {
+            let (l, mm) = relabel(parts, &lines, m, biaxial_predictor);
             (l, Some(mm))
         }
-        (_, other) => (lines, other),
+        (FitModel::Stiff, Some(m), Shape::Rectangle { width, height }) => {
+            let (l, mm) = relabel(parts, &lines, m, |o| plate_predictor(o, width.0, height.0));
+            (l, Some(mm))
+        }
+        (_, other, _) => (lines, other),
     };
     let mut fit_result = None;
     let mut biaxial: Option<crate::biaxial::Biaxial> = None;
+    let mut plate: Option<crate::plate::PlateFit> = None;
     let mut modes = Vec::new();
     let mut missing = Vec::new();
     let mut unmatched: Vec<usize> = (0..parts.len()).collect();
@@ -315,6 +372,42 @@ pub fn measure_with(
         fit_result = match (opts.model, panel.shape) {
             (FitModel::FreeAspect | FitModel::Biaxial, Shape::Rectangle { width, .. }) => {
                 fit::fit_free_aspect(&fit_obs, width.0).or_else(|| fit::fit_isotropic(&fit_obs))
+            }
+            (FitModel::Stiff, Shape::Rectangle { width, height }) => {
+                let pairs: Vec<(f64, f64)> = fit_obs
+                    .iter()
+                    .map(|o| {
+                        (
+                            o.frequency_hz,
+                            crate::plate::k_squared(width.0, height.0, o.mode.0, o.mode.1),
+                        )
+                    })
+                    .collect();
+                plate = crate::plate::fit(&pairs, panel.areal_density.map(|s| s.0));
+                match &plate {
+                    Some(pf) => fit::fit_isotropic(&fit_obs).map(|mut f| {
+                        f.model = FitModel::Stiff;
+                        f.wave_speed = fit::Estimate {
+                            value: pf.t_over_sigma.value.max(0.0).sqrt(),
+                            standard_uncertainty: 0.5 * pf.t_over_sigma.standard_uncertainty
+                                / pf.t_over_sigma.value.abs().sqrt().max(1e-300),
+                        };
+                        f.plate = Some((pf.t_over_sigma.value, pf.d_over_sigma.value, width.0, height.0));
+                        f.rms_residual_cents = pf.rms_residual_cents;
+                        f.outliers = Vec::new();
+                        f.n_used = fit_obs.len();
+                        f.dof = fit_obs.len().saturating_sub(2);
+                        f.iterations = pf.iterations;
+                        f.stop_reason = "Gauss–Newton converged".into();
+                        f.uncertainty_method = format!(
+                            "s²(JᵀJ)⁻¹, {} modes, 2 parameters (Type A), with {} cents for the frequency method",
+                            fit_obs.len(),
+                            fit::METHOD_CENTS
+                        );
+                        f
+                    }),
+                    None => fit::fit_isotropic(&fit_obs),
+                }
             }
             _ => fit::fit_isotropic(&fit_obs),
         };
@@ -497,6 +590,7 @@ pub fn measure_with(
         warnings,
         budget,
         biaxial,
+        plate,
         duration_s: rec.duration_s(),
     })
 }

@@ -96,6 +96,9 @@ pub struct SynthConfig {
     /// Tension along y when it differs from `tension` (taken along x);
     /// rectangle only.
     pub tension_y: Option<NewtonsPerMeter>,
+    /// Bending stiffness D, N·m (rectangle: the simply supported
+    /// prestressed plate of [`crate::plate`]).
+    pub bending_stiffness: Option<f64>,
 }
 
 impl SynthConfig {
@@ -122,6 +125,7 @@ impl SynthConfig {
             max_frequency_hz: 6000.0,
             air_loaded: false,
             tension_y: None,
+            bending_stiffness: None,
         }
     }
 }
@@ -224,6 +228,22 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
     let mut comps: Vec<(f64, f64, f64)> = Vec::new();
     for line in &lines {
         let f = match (cfg.tension_y, cfg.shape) {
+            _ if cfg.bending_stiffness.is_some()
+                && matches!(cfg.shape, Shape::Rectangle { .. }) =>
+            {
+                let (Shape::Rectangle { width, height }, Some(d)) =
+                    (cfg.shape, cfg.bending_stiffness)
+                else {
+                    unreachable!("checked by the guard")
+                };
+                let (m, n) = line.labels[0];
+                let s = cfg.areal_density.0;
+                crate::plate::frequency_hz(
+                    cfg.tension.0 / s,
+                    d / s,
+                    crate::plate::k_squared(width.0, height.0, m, n),
+                )
+            }
             // Biaxial: f² = (Tx·(m/Lx)² + Ty·(n/Ly)²)/(4σ) for the first
             // mode of the line (an (m,n)/(n,m) pair of a square splits; only
             // its first member is sounded here).

@@ -92,6 +92,16 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                     b.coverage_factor
                 );
             }
+            if let Some(p) = &m.plate {
+                if let Some(d) = p.bending_stiffness {
+                    let _ = writeln!(
+                        s,
+                        "  bending stiffness D = {}  (correlation with T {:.2})",
+                        pm(d.value, d.standard_uncertainty, "N·m"),
+                        p.correlation
+                    );
+                }
+            }
             if let Some(b) = &m.biaxial {
                 let k = unit.newtons_per_meter();
                 if let (Some(tx), Some(ty)) = (b.tension_x, b.tension_y) {
