@@ -97,7 +97,21 @@ pub fn fit(
     } = output.clone();
     let out = out.as_deref();
     let rec = recording::read_wav(path, channel)?;
-    let m = pipeline::measure(&rec, panel, opts)?;
+    let mut m = pipeline::measure(&rec, panel, opts)?;
+    if !m.analysis.tap.further_taps_s.is_empty() {
+        // Several taps: fit each, combine the good ones.
+        let sr = rec.sample_rate_hz;
+        let mut onsets = vec![m.analysis.tap.onset_sample];
+        onsets.extend(
+            m.analysis
+                .tap
+                .further_taps_s
+                .iter()
+                .map(|t| (t * sr).round() as usize),
+        );
+        let (_, series) = crate::taps::measure_taps(&rec, &onsets, panel, opts)?;
+        m.taps = Some(series);
+    }
     let mut stdout = if as_json {
         format!(
             "{}\n",

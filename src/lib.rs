@@ -28,5 +28,6 @@ pub mod report;
 pub mod spectrum;
 pub mod synth;
 pub mod tap;
+pub mod taps;
 pub mod units;
 pub mod warning;

@@ -201,6 +201,9 @@ pub fn analyse_with(
     })
 }
 
+/// A steady line must stand this far above the background's own noise
+/// (dB), so that a weak partial near the noise is not mistaken for one.
+pub const STEADY_ABOVE_NOISE_DB: f64 = 10.0;
 /// Level (dB) within which a line already sounding before the tap counts
 /// as steady: a partial of the tap is absent from the background.
 pub const STEADY_LEVEL_DB: f64 = 6.0;
@@ -214,7 +217,11 @@ fn hum_family(
     background: Option<&spectrum::Background>,
 ) -> Option<(f64, u32)> {
     let sustained = match (background, p.decay_rate_db_per_s) {
-        (Some(b), _) => b.level_near(p.frequency_hz) >= p.level_db - STEADY_LEVEL_DB,
+        (Some(b), _) => {
+            let line = b.level_near(p.frequency_hz);
+            line >= p.level_db - STEADY_LEVEL_DB
+                && line >= b.noise_level_near(p.frequency_hz) + STEADY_ABOVE_NOISE_DB
+        }
         (None, Some(r)) => r < SUSTAINED_DECAY_DB_PER_S,
         (None, None) => false,
     };

@@ -112,6 +112,9 @@ pub struct Measurement {
     pub biaxial: Option<crate::biaxial::Biaxial>,
     /// Tension and bending stiffness, for the plate model.
     pub plate: Option<crate::plate::PlateFit>,
+    /// Every tap of a recording with several, combined (set by
+    /// [`crate::taps::measure_taps`] callers).
+    pub taps: Option<crate::taps::TapSeries>,
 }
 
 /// Predicted lines for a panel up to at least `g_max`, from a small
@@ -591,6 +594,7 @@ pub fn measure_with(
         budget,
         biaxial,
         plate,
+        taps: None,
         duration_s: rec.duration_s(),
     })
 }

@@ -263,6 +263,7 @@ pub fn noise_density(
         density: quartile.iter().map(|m| (m / ratio).max(1e-300)).collect(),
         line_level_db,
         bin_hz,
+        frame_sums: (hann_sum, wsq),
     })
 }
 
@@ -278,9 +279,19 @@ pub struct Background {
     pub line_level_db: Vec<f64>,
     /// Grid spacing, Hz.
     pub bin_hz: f64,
+    /// Σw and Σw² of the Welch frame, for converting the density to a level.
+    pub frame_sums: (f64, f64),
 }
 
 impl Background {
+    /// Level that the background's noise alone reads at `f_hz` on the same
+    /// scale as [`Background::level_near`], dB.
+    pub fn noise_level_near(&self, f_hz: f64) -> f64 {
+        let k = ((f_hz / self.bin_hz).round() as usize).min(self.density.len() - 1);
+        let (s, sq) = self.frame_sums;
+        10.0 * (4.0 * self.density[k] * sq / (s * s) + 1e-30).log10()
+    }
+
     /// Level of steady sound at the bin nearest `f_hz`, dB.
     pub fn level_near(&self, f_hz: f64) -> f64 {
         let k = ((f_hz / self.bin_hz).round() as usize).min(self.line_level_db.len() - 1);

@@ -71,7 +71,7 @@ impl std::fmt::Display for Warning {
             ),
             Warning::FurtherTaps { onsets_s } => write!(
                 f,
-                "{} further tap(s) at {} s; only the first was analysed",
+                "{} further tap(s) at {} s; the detailed record is the first tap's, every tap is fitted in the tap table",
                 onsets_s.len(),
                 onsets_s
                     .iter()

@@ -621,3 +621,88 @@ fn stiff_panel_gives_tension_and_bending_stiffness() {
     assert!((d / 0.05 - 1.0).abs() < 0.02, "{d}");
     assert_eq!(v["quality"]["grade"], "sound");
 }
+
+#[test]
+fn four_taps_and_a_mis_hit() {
+    // Four good taps at 2000 N/m, then a "mis-hit" that sounds like a
+    // panel at 2600 N/m (a tap on the frame bar, say), spliced on.
+    let dir = tempfile::tempdir().unwrap();
+    let geo = [
+        "--width",
+        "500mm",
+        "--height",
+        "400mm",
+        "--areal-density",
+        "40g/m2",
+        "--tap-at",
+        "0.3,0.35",
+    ];
+    let mut good: Vec<&str> = geo.to_vec();
+    good.extend_from_slice(&[
+        "--tension",
+        "2000N/m",
+        "--taps",
+        "4",
+        "--tap-interval",
+        "0.6s",
+        "--length",
+        "2.5s",
+        "--t60",
+        "0.4s",
+        "--snr",
+        "35",
+    ]);
+    let a = synth(dir.path(), "good.wav", &good);
+    let mut bad: Vec<&str> = geo.to_vec();
+    bad.extend_from_slice(&[
+        "--tension",
+        "2600N/m",
+        "--length",
+        "0.8s",
+        "--t60",
+        "0.4s",
+        "--snr",
+        "35",
+        "--seed",
+        "2",
+    ]);
+    let b = synth(dir.path(), "bad.wav", &bad);
+    let read = |p: &Path| -> Vec<i16> {
+        hound::WavReader::open(p)
+            .unwrap()
+            .into_samples::<i16>()
+            .map(|s| s.unwrap())
+            .collect()
+    };
+    let mut all = read(&a);
+    all.extend_from_slice(&read(&b)[4800..]);
+    let joined = dir.path().join("five.wav");
+    let spec = hound::WavSpec {
+        channels: 1,
+        sample_rate: 48000,
+        bits_per_sample: 16,
+        sample_format: hound::SampleFormat::Int,
+    };
+    let mut w = hound::WavWriter::create(&joined, spec).unwrap();
+    for s in all {
+        w.write_sample(s).unwrap();
+    }
+    w.finalize().unwrap();
+    let mut fit_args = vec![joined.to_str().unwrap()];
+    fit_args.extend_from_slice(&geo);
+    let v = fit_json(&fit_args);
+    let taps = v["taps"]["taps"].as_array().unwrap();
+    assert_eq!(taps.len(), 5, "{taps:?}");
+    let kept: Vec<bool> = taps.iter().map(|t| t["kept"].as_bool().unwrap()).collect();
+    assert_eq!(kept, vec![true, true, true, true, false], "{taps:?}");
+    assert!(taps[4]["reason"].as_str().unwrap().contains("median"));
+    let c = &v["taps"]["combined"];
+    let u = c["standard_uncertainty"].as_f64().unwrap();
+    assert!((c["value"].as_f64().unwrap() / 2000.0 - 1.0).abs() < 0.005);
+    for t in &taps[..4] {
+        assert!(
+            u < t["value"]["standard_uncertainty"].as_f64().unwrap(),
+            "{u} vs {t}"
+        );
+    }
+}

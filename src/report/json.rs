@@ -20,6 +20,7 @@
 //! - `budget` (GUM): {`tension_n_per_m`, `rows`: [{`source`, `estimate`, `standard_uncertainty`, `sensitivity`, `contribution_n_per_m`}], `combined_standard_uncertainty_n_per_m`, `coverage_factor`, `expanded_uncertainty_n_per_m`} or null without areal density
 //! - `biaxial` (model biaxial): {`tension_x`, `tension_y` (N/m, {value, standard_uncertainty}), `tx_over_sigma`, `ty_over_sigma` (m²/s²), `ratio`, `anisotropy_percent`, `correlation`, `swapped` [Tx, Ty] of the relabelled solution} or null
 //! - `plate` (model stiff): {`t_over_sigma` (m²/s²), `d_over_sigma` (m⁴/s²), `tension` (N/m), `bending_stiffness` (N·m), `correlation`, …} or null
+//! - `taps` (several taps in the file): {`taps`: [{`onset_s`, `value`, `grade`, `modes`, `kept`, `reason`}], `combined` {value, standard_uncertainty}, `repeatability`, `unit`} or null
 //! - `warnings`: [{`kind`, `message`, …}]
 //! - `caution`: the safety note.
 
@@ -164,6 +165,7 @@ pub fn fit_record(file: &Path, m: &Measurement, unit: TensionUnit) -> Value {
             "rival_wave_speed_m_per_s": x.rival.map(|r| r.0),
         })),
         "budget": serde_json::to_value(&m.budget).unwrap_or(Value::Null),
+        "taps": serde_json::to_value(&m.taps).unwrap_or(Value::Null),
         "biaxial": serde_json::to_value(&m.biaxial).unwrap_or(Value::Null),
         "plate": serde_json::to_value(&m.plate).unwrap_or(Value::Null),
         "warnings": warnings_json(&m.warnings),

@@ -211,6 +211,33 @@ pub fn fit_report(
         }
         let _ = writeln!(s);
     }
+    if let Some(t) = &m.taps {
+        let _ = writeln!(
+            s,
+            "## Taps\n\n| onset s | value | grade | kept | reason |\n|---:|---|---|---|---|"
+        );
+        for tap in &t.taps {
+            let _ = writeln!(
+                s,
+                "| {:.3} | {} | {} | {} | {} |",
+                tap.onset_s,
+                tap.value
+                    .map(|v| pm(v.value, v.standard_uncertainty, t.unit))
+                    .unwrap_or_else(|| "–".into()),
+                tap.grade.name(),
+                if tap.kept { "yes" } else { "no" },
+                tap.reason.clone().unwrap_or_default()
+            );
+        }
+        if let Some(c) = t.combined {
+            let _ = writeln!(
+                s,
+                "\nCombined (inverse-variance weighted, uncertainty at least the repeatability s/√n): **{}**; repeatability s = {}.\n",
+                pm(c.value, c.standard_uncertainty, t.unit),
+                t.repeatability.map(|r| format!("{r:.3} {}", t.unit)).unwrap_or_else(|| "–".into())
+            );
+        }
+    }
     let _ = writeln!(s, "## Warnings\n");
     if m.warnings.is_empty() {
         let _ = writeln!(s, "None.\n");

@@ -197,6 +197,34 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
             .collect();
         let _ = writeln!(s, "unmatched partials [Hz]: {}", list.join(", "));
     }
+    if let Some(t) = &m.taps {
+        let _ = writeln!(s, "\ntaps ({} found):", t.taps.len());
+        for tap in &t.taps {
+            let _ = writeln!(
+                s,
+                "  at {:>7.3} s  {:>26}  {:<9} {}",
+                tap.onset_s,
+                tap.value
+                    .map(|v| pm(v.value, v.standard_uncertainty, t.unit))
+                    .unwrap_or_else(|| "–".into()),
+                tap.grade.name(),
+                tap.reason
+                    .as_deref()
+                    .map(|r| format!("left out: {r}"))
+                    .unwrap_or_default()
+            );
+        }
+        if let Some(c) = t.combined {
+            let _ = writeln!(
+                s,
+                "  combined     {}  repeatability (s) {}",
+                pm(c.value, c.standard_uncertainty, t.unit),
+                t.repeatability
+                    .map(|r| format!("{} {}", crate::units::sig(r, 3), t.unit))
+                    .unwrap_or_else(|| "–".into())
+            );
+        }
+    }
     for w in &m.warnings {
         let _ = writeln!(s, "warning: {w}");
     }
