@@ -498,6 +498,48 @@ mod tests {
         assert_eq!(count_flat_tops(&y), 0);
     }
 
+    /// A 64-bit float WAV (format tag 3), which hound refuses, written byte
+    /// by byte after the RIFF layout (header 44 bytes, little endian).
+    #[test]
+    fn float64_wav_is_decoded() {
+        let sr = 48_000u32;
+        let n = 4800usize;
+        let samples: Vec<f64> = (0..n)
+            .map(|i| {
+                0.25 + 0.5 * (2.0 * std::f64::consts::PI * 1000.0 * i as f64 / sr as f64).sin()
+            })
+            .collect();
+        let data_len = (n * 8) as u32;
+        let mut b = Vec::new();
+        b.extend_from_slice(b"RIFF");
+        b.extend_from_slice(&(36 + data_len).to_le_bytes());
+        b.extend_from_slice(b"WAVEfmt ");
+        b.extend_from_slice(&16u32.to_le_bytes());
+        b.extend_from_slice(&3u16.to_le_bytes()); // IEEE float
+        b.extend_from_slice(&1u16.to_le_bytes()); // mono
+        b.extend_from_slice(&sr.to_le_bytes());
+        b.extend_from_slice(&(sr * 8).to_le_bytes());
+        b.extend_from_slice(&8u16.to_le_bytes());
+        b.extend_from_slice(&64u16.to_le_bytes());
+        b.extend_from_slice(b"data");
+        b.extend_from_slice(&data_len.to_le_bytes());
+        for x in &samples {
+            b.extend_from_slice(&x.to_le_bytes());
+        }
+        let dir = std::env::temp_dir().join(format!("tonus-f64-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let p = dir.join("f64.wav");
+        std::fs::write(&p, &b).unwrap();
+        let rec = read_wav(&p, ChannelChoice::MixDown).unwrap();
+        let _ = std::fs::remove_dir_all(&dir);
+        assert_eq!(rec.bits_per_sample, 64);
+        assert_eq!(rec.sample_format, SampleFormat::Float);
+        assert_eq!(rec.samples.len(), n);
+        // The 0.25 offset is removed; the sine's mean over whole periods is 0.
+        assert!((rec.dc_offset - 0.25).abs() < 1e-9);
+        assert!((rec.samples[12] - (samples[12] - rec.dc_offset)).abs() < 1e-15);
+    }
+
     #[test]
     fn truncated_header_is_an_error() {
         let p = Path::new("x.wav");
