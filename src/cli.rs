@@ -144,6 +144,52 @@ pub enum Command {
         #[arg(long)]
         bending_stiffness: Option<f64>,
     },
+    /// Decide recordings against a specification (pass / fail /
+    /// indeterminate / not measured), in parallel, with a history record.
+    Inspect {
+        /// Specification file (TOML).
+        #[arg(long)]
+        spec: PathBuf,
+        /// Recordings and folders of recordings.
+        #[arg(required = true)]
+        inputs: Vec<PathBuf>,
+        /// Folder for inspect.csv and inspect.jsonl [default: inspect-out].
+        #[arg(long, default_value = "inspect-out")]
+        out: PathBuf,
+        /// History database [default: tonus-history.sqlite].
+        #[arg(long, default_value = "tonus-history.sqlite")]
+        history: PathBuf,
+        /// Do not write the history.
+        #[arg(long)]
+        no_history: bool,
+        /// Station name for the record.
+        #[arg(long)]
+        station: Option<String>,
+        /// Operator name for the record.
+        #[arg(long)]
+        operator: Option<String>,
+    },
+    /// List or export the decision history.
+    History {
+        /// History database [default: tonus-history.sqlite].
+        #[arg(long, default_value = "tonus-history.sqlite")]
+        db: PathBuf,
+        /// Only this specification (panel type) name.
+        #[arg(long)]
+        spec: Option<String>,
+        /// From this time (RFC 3339, e.g. 2026-12-01T00:00:00Z).
+        #[arg(long)]
+        since: Option<String>,
+        /// Before this time (RFC 3339).
+        #[arg(long)]
+        until: Option<String>,
+        /// Only this decision: pass, fail, indeterminate, not_measured.
+        #[arg(long)]
+        decision: Option<String>,
+        /// Export as CSV to this file instead of listing.
+        #[arg(long)]
+        csv: Option<PathBuf>,
+    },
     /// Fit every recording in the demo folder and write the reports.
     Demo {
         /// Folder of recordings, each with a NAME.panel.toml beside it.

@@ -264,6 +264,58 @@ pub fn synth(cfg: &SynthConfig, output: &Path, bits: u16, float: bool) -> Result
     })
 }
 
+/// `tonus history`: lists (or exports) stored decisions.
+///
+/// # Errors
+/// An unreadable database, a malformed time or decision name.
+pub fn history(
+    db: &Path,
+    filter: &crate::history::Filter,
+    csv_out: Option<&Path>,
+) -> Result<Outcome> {
+    if !db.exists() {
+        return Err(TonusError::Io {
+            path: db.to_path_buf(),
+            reason: "no history database there; run tonus inspect first or pass --db".into(),
+        });
+    }
+    let h = crate::history::History::open(db)?;
+    if let Some(out) = csv_out {
+        let mut buf = Vec::new();
+        let n = h.export_csv(filter, &mut buf)?;
+        report::write_atomic(out, &buf)?;
+        return Ok(Outcome {
+            stdout: format!("{n} rows written to {}\n", out.display()),
+            stderr: String::new(),
+            exit: 0,
+        });
+    }
+    let rows = h.query(filter)?;
+    let mut stdout = format!(
+        "{:<25} {:<14} {:>12} {:<24} {}\n",
+        "time", "decision", "tension N/m", "spec", "recording"
+    );
+    for r in &rows {
+        stdout.push_str(&format!(
+            "{:<25} {:<14} {:>12} {:<24} {}\n",
+            r.row.time.to_rfc3339(),
+            r.row.decision,
+            r.row
+                .tension_n_per_m
+                .map(|t| format!("{t:.1}"))
+                .unwrap_or_else(|| "–".into()),
+            format!("{} v{}", r.row.spec_name, r.row.spec_version),
+            r.row.recording_path
+        ));
+    }
+    stdout.push_str(&format!("{} rows\n", rows.len()));
+    Ok(Outcome {
+        stdout,
+        stderr: String::new(),
+        exit: 0,
+    })
+}
+
 /// `tonus demo`: fits every WAV in `dir` with its `NAME.panel.toml` and
 /// writes the reports, a summary CSV and an index into `out`. A file that
 /// fails becomes a row with its error; the others are still written.

@@ -7,15 +7,18 @@
 //! results. [`synth`] makes test and demo recordings by modal synthesis.
 
 pub mod airload;
+pub mod batch;
 pub mod bessel;
 pub mod biaxial;
 pub mod budget;
 pub mod cli;
 pub mod commands;
 pub mod crlb;
+pub mod decision;
 pub mod error;
 pub mod estimator;
 pub mod fit;
+pub mod history;
 pub mod matching;
 pub mod membrane;
 pub mod panel;
@@ -25,7 +28,9 @@ pub mod plate;
 pub mod quality;
 pub mod recording;
 pub mod report;
+pub mod spec;
 pub mod spectrum;
+pub mod stats;
 pub mod synth;
 pub mod tap;
 pub mod taps;

@@ -102,6 +102,48 @@ fn run(cli: Cli) -> Result<Outcome> {
             commands::synth(&cfg, &output, b, float)
         }
         Command::Demo { recordings, out } => commands::demo(&recordings, &out),
+        Command::Inspect {
+            spec,
+            inputs,
+            out,
+            history,
+            no_history,
+            station,
+            operator,
+        } => {
+            let spec = tonus::spec::Spec::from_file(&spec)?;
+            let files = tonus::batch::expand_inputs(&inputs)?;
+            tonus::batch::inspect(
+                &spec,
+                &files,
+                &tonus::batch::InspectOptions {
+                    out,
+                    history: (!no_history).then_some(history),
+                    station,
+                    operator,
+                },
+            )
+        }
+        Command::History {
+            db,
+            spec,
+            since,
+            until,
+            decision,
+            csv,
+        } => {
+            let filter = tonus::history::Filter {
+                spec_name: spec,
+                since: since
+                    .map(|t| tonus::history::UtcTime::parse("--since", &t))
+                    .transpose()?,
+                until: until
+                    .map(|t| tonus::history::UtcTime::parse("--until", &t))
+                    .transpose()?,
+                decision,
+            };
+            commands::history(&db, &filter, csv.as_deref())
+        }
     }
 }
 
