@@ -105,7 +105,12 @@ pub fn crlb_frequency_hz(
     n: usize,
     noise_variance: f64,
 ) -> f64 {
-    let var_w = frequency_variance_rad(amplitude, decay_rate_per_s / sample_rate_hz, n, noise_variance);
+    let var_w = frequency_variance_rad(
+        amplitude,
+        decay_rate_per_s / sample_rate_hz,
+        n,
+        noise_variance,
+    );
     var_w.sqrt() * sample_rate_hz / (2.0 * PI)
 }
 
@@ -119,14 +124,20 @@ pub fn crlb_decay_rate_per_s(
     n: usize,
     noise_variance: f64,
 ) -> f64 {
-    let var_w = frequency_variance_rad(amplitude, decay_rate_per_s / sample_rate_hz, n, noise_variance);
+    let var_w = frequency_variance_rad(
+        amplitude,
+        decay_rate_per_s / sample_rate_hz,
+        n,
+        noise_variance,
+    );
     var_w.sqrt() * sample_rate_hz
 }
 
 /// var(ω̂) in (rad/sample)², the closed form 2σ²/(A²·S₀·V).
 fn frequency_variance_rad(amplitude: f64, a: f64, n: usize, noise_variance: f64) -> f64 {
     let info = amplitude * amplitude * weight_sum(a, n) * weighted_variance(a, n);
-    if !(info > 0.0) {
+    // NaN or non-positive information: no bound.
+    if info.is_nan() || info <= 0.0 {
         return f64::INFINITY;
     }
     2.0 * noise_variance / info
@@ -231,7 +242,9 @@ pub fn crlb_frequency_numeric(
         n,
         noise_variance,
     );
-    let d = j.diagonal().map(|v| if v > 0.0 { 1.0 / v.sqrt() } else { 0.0 });
+    let d = j
+        .diagonal()
+        .map(|v| if v > 0.0 { 1.0 / v.sqrt() } else { 0.0 });
     if d.iter().any(|&v| v == 0.0) {
         return f64::INFINITY;
     }
@@ -348,7 +361,10 @@ mod tests {
             let num = crlb_frequency_numeric(0.5, alpha, f, phase, 48_000.0, n, 1e-6);
             // "A few percent": the neglected terms are of order
             // α/(2πf) ≲ 2 % here.
-            assert!((num / closed - 1.0).abs() < 0.02, "α={alpha}: {num} vs {closed}");
+            assert!(
+                (num / closed - 1.0).abs() < 0.02,
+                "α={alpha}: {num} vs {closed}"
+            );
         }
     }
 
