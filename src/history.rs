@@ -428,9 +428,24 @@ impl History {
         // The busy timeout first: the pragmas and the schema below may
         // have to wait for another process opening the same file.
         conn.busy_timeout(BUSY_TIMEOUT).map_err(io)?;
-        let mode: String = conn
-            .query_row("PRAGMA journal_mode=WAL", [], |r| r.get(0))
-            .map_err(io)?;
+        // Switching to WAL needs a moment alone with the file, and SQLite
+        // does not always run the busy handler for it: retry, bounded by
+        // the busy timeout, when a second process is opening at once.
+        let started = std::time::Instant::now();
+        let mode: String = loop {
+            match conn.query_row("PRAGMA journal_mode=WAL", [], |r| r.get::<_, String>(0)) {
+                Ok(m) => break m,
+                Err(rusqlite::Error::SqliteFailure(e, _))
+                    if matches!(
+                        e.code,
+                        rusqlite::ErrorCode::DatabaseBusy | rusqlite::ErrorCode::DatabaseLocked
+                    ) && started.elapsed() < BUSY_TIMEOUT =>
+                {
+                    std::thread::sleep(std::time::Duration::from_millis(20));
+                }
+                Err(e) => return Err(io(e)),
+            }
+        };
         if !mode.eq_ignore_ascii_case("wal") {
             return Err(TonusError::Io {
                 path: path.to_path_buf(),

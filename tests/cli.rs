@@ -219,7 +219,7 @@ fn outputs_are_written_whole() {
     let leftovers: Vec<_> = std::fs::read_dir(&out)
         .unwrap()
         .filter_map(|e| e.ok())
-        .filter(|e| e.file_name().to_string_lossy().ends_with(".part"))
+        .filter(|e| e.file_name().to_string_lossy().contains(".part"))
         .collect();
     assert!(leftovers.is_empty());
     let md = std::fs::read_to_string(out.join("screen.report.md")).unwrap();

@@ -115,9 +115,8 @@ fn all_pass_exits_zero_and_history_is_kept() {
     let f = make(d, "good.wav", "2000N/m");
     let s = spec(d, "simple");
     let db = d.join("h.sqlite");
-    let out = d.join("out");
     // Two inspect processes at once write the same database.
-    let run = || {
+    let run = |out: PathBuf| {
         Command::new(env!("CARGO_BIN_EXE_tonus"))
             .args([
                 "inspect",
@@ -131,12 +130,24 @@ fn all_pass_exits_zero_and_history_is_kept() {
                 f.to_str().unwrap(),
                 f.to_str().unwrap(),
             ])
+            .stderr(std::process::Stdio::piped())
             .spawn()
             .unwrap()
     };
-    let (mut a, mut b) = (run(), run());
-    assert_eq!(a.wait().unwrap().code(), Some(0));
-    assert_eq!(b.wait().unwrap().code(), Some(0));
+    let (a, b) = (run(d.join("out-a")), run(d.join("out-b")));
+    let (a, b) = (a.wait_with_output().unwrap(), b.wait_with_output().unwrap());
+    assert_eq!(
+        a.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&a.stderr)
+    );
+    assert_eq!(
+        b.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&b.stderr)
+    );
     let o = tonus(&["history", "--db", db.to_str().unwrap()]);
     let text = String::from_utf8_lossy(&o.stdout);
     assert!(text.contains("6 rows"), "{text}");

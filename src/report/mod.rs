@@ -7,10 +7,18 @@ pub mod png;
 
 use std::path::{Path, PathBuf};
 
-/// Temporary sibling path used for atomic writes.
+/// Temporary sibling path used for atomic writes: `NAME.part-PID-N`, unique
+/// per process and call, so two processes writing the same output never
+/// rename each other's half-written file.
 pub fn temp_path(p: &Path) -> PathBuf {
+    use std::sync::atomic::{AtomicU64, Ordering};
+    static COUNTER: AtomicU64 = AtomicU64::new(0);
     let mut s = p.as_os_str().to_owned();
-    s.push(".part");
+    s.push(format!(
+        ".part-{}-{}",
+        std::process::id(),
+        COUNTER.fetch_add(1, Ordering::Relaxed)
+    ));
     PathBuf::from(s)
 }
 
