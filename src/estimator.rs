@@ -1519,36 +1519,3 @@ mod tests {
         assert!((fit.reduced_chi2 - 1.0).abs() < 0.3, "{fit:?}");
     }
 }
-
-#[cfg(test)]
-mod scratch {
-    use super::*;
-    use crate::synth::Rng;
-    #[test]
-    fn scratch_speed() {
-        let fs = 48_000.0;
-        let n = 72_000;
-        let mut rng = Rng::new(4242);
-        let parts: Vec<(f64, f64, f64, f64)> = (0..30)
-            .map(|i| {
-                let f = 150.0 * (1.0 + i as f64).powf(1.1) + 7.0 * rng.uniform();
-                let t60 = 1.2 * (150.0 / f).sqrt();
-                (f, 0.05 + 0.2 * rng.uniform(), 3.0 * LN_10 / t60, 2.0 * PI * rng.uniform())
-            })
-            .collect();
-        let x: Vec<f64> = (0..n).map(|i| { let t = i as f64 / fs; parts.iter().map(|&(f,a,al,ph)| a*(-al*t).exp()*(2.0*PI*f*t+ph).cos()).sum::<f64>() + 1e-4*rng.normal() }).collect();
-        let mut an = SpanAnalyser::new(&x, fs, 1e-8);
-        let t0 = std::time::Instant::now();
-        let mut worst: f64 = 0.0;
-        for _ in 0..20 {
-            for p in &parts {
-                let fit = an.estimate(&BandConfig { centre_hz: p.0, half_width_hz: 20.0, max_order: 3 });
-                let c = fit.components.iter().min_by(|a, b| (a.frequency_hz - p.0).abs().total_cmp(&(b.frequency_hz - p.0).abs()));
-                let z = c.map(|c| (c.frequency_hz - p.0) / c.frequency_u_hz).unwrap_or(f64::NAN);
-                worst = worst.max(z.abs());
-                if std::env::var("SHOW").is_ok() { println!("{:.1} z {:.2} mdl {} edge {} M {} rate {} bins {} fitted {} rej {} it {} base {} chi2 {:.2}", p.0, z, fit.mdl_order, fit.noise_edge_order, fit.pencil_samples, fit.pencil_rate_hz, fit.fit_bins, fit.fitted_components, fit.rejected_components, fit.iterations, fit.baseline_terms, fit.reduced_chi2); }
-            }
-        }
-        println!("per band {:.3} ms, worst |z| {worst:.2}", t0.elapsed().as_secs_f64() * 1e3 / 600.0);
-    }
-}
