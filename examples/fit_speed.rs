@@ -45,8 +45,8 @@ fn main() {
         ),
     ];
     println!(
-        "{:<24} {:>12} {:>14} {:>12} {:>8}",
-        "case", "fit [ms]", "partials [ms]", "FFT [ms]", "modes"
+        "{:<24} {:>12} {:>12} {:>14} {:>12} {:>8}",
+        "case", "fit [ms]", "FFT-only fit", "partials [ms]", "FFT [ms]", "modes"
     );
     for (name, shape, tap, tension) in cases {
         let mut cfg = SynthConfig::new(shape, KgPerM2(0.26), NewtonsPerMeter(tension), tap);
@@ -73,7 +73,18 @@ fn main() {
             times.push(t0.elapsed().as_secs_f64() * 1e3);
             std::hint::black_box(m);
         }
-        // The partial finder alone (tap, spectrum, peaks, decays).
+        // Before the damped-sinusoid refinement: FFT peaks only.
+        let mut plain = FitOptions::default();
+        plain.analysis.refine = false;
+        let mut plain_times = Vec::new();
+        for _ in 0..runs {
+            let t0 = Instant::now();
+            let m = measure_with(&rec, &panel, &plain, &mut planner).expect("fit");
+            plain_times.push(t0.elapsed().as_secs_f64() * 1e3);
+            std::hint::black_box(m);
+        }
+        // The partial finder alone (tap, spectrum, peaks, decays, and the
+        // refinement of every peak, as `tonus partials` runs it).
         let mut partial_times = Vec::new();
         for _ in 0..runs {
             let t0 = Instant::now();
@@ -92,9 +103,10 @@ fn main() {
             std::hint::black_box(s);
         }
         println!(
-            "{:<24} {:>12.2} {:>14.2} {:>12.2} {:>8}",
+            "{:<24} {:>12.2} {:>12.2} {:>14.2} {:>12.2} {:>8}",
             name,
             median(times),
+            median(plain_times),
             median(partial_times),
             median(fft_times),
             modes

@@ -434,6 +434,7 @@ mod tests {
             decay_rate_db_per_s: Some(50.0),
             t60_s: Some(1.2),
             q: None,
+            ..Partial::default()
         }
     }
 

@@ -51,6 +51,10 @@ pub struct AnalysisConfig {
     pub max_partials: usize,
     /// Mains frequencies whose families are recognised as hum.
     pub mains_hz: Vec<f64>,
+    /// Refine every partial with the damped-sinusoid estimator (frequency
+    /// uncertainty, decay from the fit, split pairs); off leaves the FFT
+    /// peaks and STFT decays.
+    pub refine: bool,
 }
 
 impl Default for AnalysisConfig {
@@ -62,12 +66,13 @@ impl Default for AnalysisConfig {
             max_frequency_hz: None,
             max_partials: DEFAULT_MAX_PARTIALS,
             mains_hz: vec![50.0, 60.0],
+            refine: true,
         }
     }
 }
 
 /// One measured partial.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, Default)]
 pub struct Partial {
     /// Frequency, Hz.
     pub frequency_hz: f64,
@@ -84,6 +89,86 @@ pub struct Partial {
     pub t60_s: Option<f64>,
     /// Quality factor π·f·τ.
     pub q: Option<f64>,
+    /// How the frequency and decay were obtained.
+    pub method: FrequencyMethod,
+    /// Standard uncertainty of the frequency, Hz (the damped-sinusoid
+    /// fit's inverse Fisher information; for a pair, of the pair's mean).
+    /// None for an FFT-peak estimate.
+    pub frequency_u_hz: Option<f64>,
+    /// Cramér–Rao bound of the frequency of an isolated damped sinusoid
+    /// with this partial's amplitude and decay, Hz.
+    pub crlb_hz: Option<f64>,
+    /// Standard uncertainty of the decay rate, dB/s.
+    pub decay_rate_u_db_per_s: Option<f64>,
+    /// Initial amplitude, in full-scale units (1 = a full-scale sine).
+    pub amplitude: Option<f64>,
+    /// Two members of nearly equal frequency resolved within one peak:
+    /// the frequency above is then their mean.
+    pub pair: Option<SplitPair>,
+}
+
+/// How a partial's frequency was measured.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum FrequencyMethod {
+    /// FFT peak with log-parabola interpolation, STFT decay.
+    #[default]
+    FftPeak,
+    /// Damped-sinusoid fit ([`crate::estimator`]).
+    DampedFit,
+}
+
+/// One member of a split pair.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct PairMember {
+    /// Frequency, Hz.
+    pub frequency_hz: f64,
+    /// Its standard uncertainty, Hz.
+    pub frequency_u_hz: f64,
+    /// Its Cramér–Rao bound, Hz.
+    pub crlb_hz: f64,
+    /// Level decay rate, dB/s.
+    pub decay_rate_db_per_s: f64,
+    /// T60, s.
+    pub t60_s: f64,
+    /// Initial level, dB re a full-scale sine.
+    pub level_db: f64,
+}
+
+/// A split pair: two partials closer than the peak picker could separate,
+/// as a degenerate mode pair splits under uneven tension.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct SplitPair {
+    /// The lower member.
+    pub lower: PairMember,
+    /// The upper member.
+    pub upper: PairMember,
+    /// Upper minus lower, Hz.
+    pub splitting_hz: f64,
+    /// Its standard uncertainty, Hz (members taken as uncorrelated).
+    pub splitting_u_hz: f64,
+    /// 1200·log2(upper/lower), cents.
+    pub splitting_cents: f64,
+    /// Its standard uncertainty, cents.
+    pub splitting_u_cents: f64,
+}
+
+impl SplitPair {
+    fn new(lower: PairMember, upper: PairMember) -> Self {
+        let d = upper.frequency_hz - lower.frequency_hz;
+        let u = lower.frequency_u_hz.hypot(upper.frequency_u_hz);
+        let cents = 1200.0 * (upper.frequency_hz / lower.frequency_hz).log2();
+        let cents_per_hz =
+            1200.0 / std::f64::consts::LN_2 / (0.5 * (upper.frequency_hz + lower.frequency_hz));
+        SplitPair {
+            lower,
+            upper,
+            splitting_hz: d,
+            splitting_u_hz: u,
+            splitting_cents: cents,
+            splitting_u_cents: u * cents_per_hz,
+        }
+    }
 }
 
 /// A partial set aside as mains hum.
@@ -191,14 +276,19 @@ pub fn analyse_with(
             });
         }
     }
-    Ok(PartialAnalysis {
+    let mut analysis = PartialAnalysis {
         tap,
         spectrum: spec,
         partials,
         hum,
         warnings,
         sample_rate_hz: sr,
-    })
+    };
+    if cfg.refine {
+        let all: Vec<usize> = (0..analysis.partials.len()).collect();
+        refine(rec, &mut analysis, &all, planner);
+    }
+    Ok(analysis)
 }
 
 /// A steady line must stand this far above the background's own noise
@@ -302,6 +392,7 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
             decay_rate_db_per_s: None,
             t60_s: None,
             q: None,
+            ..Partial::default()
         });
     }
     cands.sort_by(|a, b| b.level_db.total_cmp(&a.level_db));
@@ -444,6 +535,153 @@ fn measure_decays(
     }
 }
 
+/// Widest band searched around an FFT peak by the estimator, Hz.
+pub const REFINE_HALF_WIDTH_HZ: f64 = 20.0;
+/// A band reaches at most this fraction of the way to the next peak, so
+/// neighbouring bands never claim the same component.
+pub const REFINE_NEIGHBOUR_FRACTION: f64 = 0.45;
+/// Components per band: a single partial or a split pair.
+pub const REFINE_MAX_ORDER: usize = 2;
+/// A refined frequency may move from its FFT peak by at most this many
+/// FFT resolution bins (1/span); farther, the fit has locked onto
+/// something else and the FFT value stands.
+pub const REFINE_MAX_SHIFT_BINS: f64 = 1.5;
+
+/// dB per neper: a level decay rate in dB/s is 20/ln 10 times the
+/// amplitude decay rate α in 1/s.
+const DB_PER_NEPER: f64 = 20.0 / std::f64::consts::LN_10;
+
+/// Refines each FFT peak with the damped-sinusoid estimator
+/// ([`crate::estimator`]) on the unwindowed span: frequency with its
+/// standard uncertainty and Cramér–Rao bound, decay rate with its
+/// uncertainty, amplitude. A band that holds two significant components
+/// becomes one partial carrying a [`SplitPair`] (its frequency the
+/// members' mean, which is the unsplit mode's to first order in the
+/// perturbation that splits it). A band where the fit finds nothing near
+/// the peak keeps the FFT estimate.
+pub fn refine(
+    rec: &Recording,
+    analysis: &mut PartialAnalysis,
+    which: &[usize],
+    planner: &mut RealFftPlanner<f64>,
+) {
+    use crate::estimator::{BandConfig, SpanAnalyser};
+    if which.is_empty() || analysis.partials.is_empty() {
+        return;
+    }
+    let sr = rec.sample_rate_hz;
+    let span = &rec.samples[analysis.tap.onset_sample..analysis.tap.end_sample];
+    let spec = &analysis.spectrum;
+    let mut analyser = SpanAnalyser::new_with(span, sr, 0.0, planner);
+    let resolution_hz = sr / analyser.samples_used().max(1) as f64;
+    // Every peak bounds its neighbours' bands, hum lines included.
+    let mut peaks: Vec<f64> = analysis
+        .partials
+        .iter()
+        .map(|p| p.frequency_hz)
+        .chain(analysis.hum.iter().map(|h| h.partial.frequency_hz))
+        .collect();
+    peaks.sort_by(f64::total_cmp);
+    for &i in which {
+        let Some(p) = analysis.partials.get_mut(i) else {
+            continue;
+        };
+        if p.method == FrequencyMethod::DampedFit {
+            continue;
+        }
+        let f0 = p.frequency_hz;
+        let gap = peaks
+            .iter()
+            .filter(|&&f| f != f0)
+            .map(|&f| (f - f0).abs())
+            .fold(f64::INFINITY, f64::min);
+        // Two resolution bins or the line's half-width, whichever is wider:
+        // a split pair lies within the peak.
+        let line_hwhm = p
+            .decay_rate_db_per_s
+            .map(|r| r.max(0.0) / DB_PER_NEPER / (2.0 * std::f64::consts::PI))
+            .unwrap_or(0.0);
+        let half_width = (2.0 * resolution_hz)
+            .max(line_hwhm)
+            .min(REFINE_NEIGHBOUR_FRACTION * gap)
+            .min(REFINE_HALF_WIDTH_HZ);
+        // The noise variance per sample at the peak, from the floor (which
+        // is E|X_k|² = σ²·Σw² for white noise of variance σ²).
+        let k = spec.bin_of(f0);
+        let sigma2 =
+            spec.floor_power[k.min(spec.floor_power.len() - 1)] / spec.window_sq_sum.max(1e-300);
+        analyser.set_noise_variance(sigma2);
+        let fit = analyser.estimate(&BandConfig {
+            centre_hz: f0,
+            half_width_hz: half_width,
+            max_order: REFINE_MAX_ORDER,
+        });
+        apply_fit(p, &fit.components, resolution_hz);
+    }
+}
+
+/// Takes the components a band fit found near the FFT peak into the
+/// partial (module notes of [`refine`]).
+fn apply_fit(
+    p: &mut Partial,
+    components: &[crate::estimator::DampedComponent],
+    resolution_hz: f64,
+) {
+    let near: Vec<_> = components
+        .iter()
+        .filter(|c| {
+            (c.frequency_hz - p.frequency_hz).abs() <= REFINE_MAX_SHIFT_BINS * resolution_hz
+                && c.frequency_u_hz.is_finite()
+                && c.decay_rate_per_s.is_finite()
+        })
+        .collect();
+    let member = |c: &crate::estimator::DampedComponent| PairMember {
+        frequency_hz: c.frequency_hz,
+        frequency_u_hz: c.frequency_u_hz,
+        crlb_hz: c.crlb_hz,
+        decay_rate_db_per_s: DB_PER_NEPER * c.decay_rate_per_s,
+        t60_s: c.t60_s,
+        level_db: 20.0 * c.amplitude.max(1e-300).log10(),
+    };
+    match near.as_slice() {
+        [c] => {
+            p.frequency_hz = c.frequency_hz;
+            p.frequency_u_hz = Some(c.frequency_u_hz);
+            p.crlb_hz = Some(c.crlb_hz);
+            set_decay(p, c.decay_rate_per_s, c.decay_rate_u_per_s);
+            p.amplitude = Some(c.amplitude);
+            p.method = FrequencyMethod::DampedFit;
+        }
+        [a, b] => {
+            p.frequency_hz = 0.5 * (a.frequency_hz + b.frequency_hz);
+            p.frequency_u_hz = Some(0.5 * a.frequency_u_hz.hypot(b.frequency_u_hz));
+            p.crlb_hz = Some(0.5 * a.crlb_hz.hypot(b.crlb_hz));
+            // The pair's decay: the stronger member's.
+            let strong = if a.amplitude >= b.amplitude { a } else { b };
+            set_decay(p, strong.decay_rate_per_s, strong.decay_rate_u_per_s);
+            p.amplitude = Some(a.amplitude.hypot(b.amplitude));
+            p.method = FrequencyMethod::DampedFit;
+            p.pair = Some(SplitPair::new(member(a), member(b)));
+        }
+        _ => {}
+    }
+}
+
+/// Sets decay rate, its uncertainty, T60 and Q from an amplitude decay
+/// rate α (1/s) and its standard uncertainty.
+fn set_decay(p: &mut Partial, alpha: f64, alpha_u: f64) {
+    let rate = DB_PER_NEPER * alpha;
+    p.decay_rate_db_per_s = Some(rate);
+    p.decay_rate_u_db_per_s = Some(DB_PER_NEPER * alpha_u);
+    if alpha > 0.0 {
+        p.t60_s = Some(60.0 / rate);
+        p.q = Some(std::f64::consts::PI * p.frequency_hz / alpha);
+    } else {
+        p.t60_s = None;
+        p.q = None;
+    }
+}
+
 /// Least-squares straight line y = a·x + b; returns (a, b).
 fn line_fit(pts: &[(f64, f64)]) -> (f64, f64) {
     let n = pts.len() as f64;
@@ -530,5 +768,51 @@ mod tests {
             .iter()
             .any(|p| (p.frequency_hz - 100.0).abs() < 0.1));
         assert!(!hum.iter().any(|f| (f - 100.0).abs() < 1.0));
+    }
+
+    #[test]
+    fn a_pair_closer_than_the_resolution_is_reported_as_a_pair() {
+        let sr = 48000.0;
+        // T60 1 s: α = 3·ln 10 = 6.91/s; the members 0.5/τ apart, i.e.
+        // 0.5·α/(2π) = 0.55 Hz, while the FFT resolution of the span is
+        // about 1 Hz.
+        let alpha = 3.0 * std::f64::consts::LN_10;
+        let df = 0.5 * alpha / (2.0 * PI);
+        let (f1, f2) = (1000.0, 1000.0 + df);
+        let x = tap_signal(
+            sr,
+            &[(f1, 0.2, 1.0), (f2, 0.2, 1.0), (1450.0, 0.2, 0.8)],
+            2.0,
+        );
+        let rec = Recording::from_samples(Path::new("t.wav"), x, sr);
+        let a = analyse(&rec, &AnalysisConfig::default()).unwrap();
+        let p = a
+            .partials
+            .iter()
+            .find(|p| (p.frequency_hz - 1000.3).abs() < 2.0)
+            .expect("the pair's peak");
+        let pair = p.pair.expect("resolved into a pair");
+        for (m, f) in [(pair.lower, f1), (pair.upper, f2)] {
+            assert!(
+                (m.frequency_hz - f).abs() < 4.0 * m.frequency_u_hz + 1e-3,
+                "{m:?} vs {f}"
+            );
+            assert!((m.t60_s - 1.0).abs() < 0.1, "{m:?}");
+        }
+        assert!(
+            (pair.splitting_hz - df).abs() < 4.0 * pair.splitting_u_hz + 1e-3,
+            "{pair:?}"
+        );
+        // The isolated partial stays single, with its uncertainty.
+        let q = a
+            .partials
+            .iter()
+            .find(|p| (p.frequency_hz - 1450.0).abs() < 1.0)
+            .unwrap();
+        assert!(q.pair.is_none());
+        assert_eq!(q.method, FrequencyMethod::DampedFit);
+        let u = q.frequency_u_hz.unwrap();
+        assert!((q.frequency_hz - 1450.0).abs() < 4.0 * u, "{q:?}");
+        assert!(u > 0.0 && u <= 2.0 * q.crlb_hz.unwrap(), "{q:?}");
     }
 }

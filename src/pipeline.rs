@@ -58,6 +58,20 @@ pub struct ModeRow {
     pub snr_db: f64,
     /// Partial T60, s.
     pub t60_s: Option<f64>,
+    /// Standard uncertainty of the measured frequency, Hz (damped-sinusoid
+    /// fit; None for an FFT-peak value).
+    pub measured_u_hz: Option<f64>,
+    /// Cramér–Rao bound of the measured frequency, Hz.
+    pub crlb_hz: Option<f64>,
+    /// Level decay rate, dB/s.
+    pub decay_rate_db_per_s: Option<f64>,
+    /// How the frequency was measured.
+    pub method: crate::partials::FrequencyMethod,
+    /// Modes sharing the line (2 for a degenerate pair).
+    pub degeneracy: usize,
+    /// The split pair on this line, when the partial was resolved into
+    /// two; the measured frequency is then their mean.
+    pub pair: Option<crate::partials::SplitPair>,
     /// Left out of the fit as an outlier.
     pub outlier: bool,
     /// Left out of the fit because a neighbouring line shares its peak.
@@ -288,7 +302,12 @@ pub fn measure_with(
             "--free-aspect needs a rectangle; a circle has no aspect ratio".into(),
         ));
     }
-    let analysis = partials::analyse_with(rec, &opts.analysis, planner)?;
+    // The FFT peaks label the modes (refinement comes after matching).
+    let coarse = AnalysisConfig {
+        refine: false,
+        ..opts.analysis.clone()
+    };
+    let mut analysis = partials::analyse_with(rec, &coarse, planner)?;
     let mut warnings = analysis.warnings.clone();
     let parts = &analysis.partials;
     let (f_lo, f_hi) = parts.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), p| {
@@ -337,15 +356,6 @@ pub fn measure_with(
     let mut missing = Vec::new();
     let mut unmatched: Vec<usize> = (0..parts.len()).collect();
     if let Some(m) = &matching {
-        let obs: Vec<Observation> = m
-            .assignments
-            .iter()
-            .map(|a| Observation {
-                frequency_hz: parts[a.partial].frequency_hz,
-                factor: lines[a.line].factor,
-                mode: lines[a.line].labels[0],
-            })
-            .collect();
         // A partial whose line has a coupled neighbour closer than
         // CROWDED_RESOLUTIONS resolution widths (1/span) shares its peak
         // with that neighbour; its frequency is pulled, so it is left out of
@@ -363,6 +373,29 @@ pub fn measure_with(
                         && (c0 * l.factor - f).abs() < CROWDED_RESOLUTIONS / span_s
                 });
                 near || !a.alternatives.is_empty()
+            })
+            .collect();
+        // The FFT peaks labelled the modes; the damped-sinusoid refinement
+        // (about a millisecond a band) is spent on the isolated modes that
+        // enter the fit.
+        if opts.analysis.refine {
+            let chosen: Vec<usize> = m
+                .assignments
+                .iter()
+                .zip(&crowded)
+                .filter(|(_, &c)| !c)
+                .map(|(a, _)| a.partial)
+                .collect();
+            partials::refine(rec, &mut analysis, &chosen, planner);
+        }
+        let parts = &analysis.partials;
+        let obs: Vec<Observation> = m
+            .assignments
+            .iter()
+            .map(|a| Observation {
+                frequency_hz: parts[a.partial].frequency_hz,
+                factor: lines[a.line].factor,
+                mode: lines[a.line].labels[0],
             })
             .collect();
         let isolated: Vec<usize> = (0..obs.len()).filter(|&i| !crowded[i]).collect();
@@ -475,6 +508,12 @@ pub fn measure_with(
                     level_db: p.level_db,
                     snr_db: p.snr_db,
                     t60_s: p.t60_s,
+                    measured_u_hz: p.frequency_u_hz,
+                    crlb_hz: p.crlb_hz,
+                    decay_rate_db_per_s: p.decay_rate_db_per_s,
+                    method: p.method,
+                    degeneracy: line.degeneracy,
+                    pair: p.pair,
                     outlier: f.outliers.contains(&i),
                     crowded: f.left_out_crowded.contains(&i),
                     alternatives: a
@@ -483,6 +522,14 @@ pub fn measure_with(
                         .map(|&j| lines[j].label_text())
                         .collect(),
                 });
+            }
+            for r in &modes {
+                if let (Some(pair), 1) = (r.pair, r.degeneracy) {
+                    warnings.push(Warning::PairOnSingleMode {
+                        labels: r.labels.clone(),
+                        frequencies_hz: (pair.lower.frequency_hz, pair.upper.frequency_hz),
+                    });
+                }
             }
             let third = modes
                 .get(2)

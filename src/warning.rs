@@ -55,11 +55,26 @@ pub enum Warning {
         /// Span in seconds.
         span_s: f64,
     },
+    /// A partial resolved into two sits on a line of one mode: two modes
+    /// close together or a beating, not a degenerate pair.
+    PairOnSingleMode {
+        /// Mode labels.
+        labels: String,
+        /// The two frequencies, Hz.
+        frequencies_hz: (f64, f64),
+    },
 }
 
 impl std::fmt::Display for Warning {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         match self {
+            Warning::PairOnSingleMode {
+                labels,
+                frequencies_hz: (a, b),
+            } => write!(
+                f,
+                "mode {labels} has one member but its peak holds two partials ({a:.3} and {b:.3} Hz); a neighbouring mode or a beating shares it, so its mean frequency is less reliable"
+            ),
             Warning::Clipping { fraction } => write!(
                 f,
                 "clipping: {:.3} % of samples at full scale; levels and decays are distorted, lower the input gain",

@@ -225,7 +225,9 @@ fn outputs_are_written_whole() {
     let md = std::fs::read_to_string(out.join("screen.report.md")).unwrap();
     assert!(md.contains("Caution"));
     let csv = std::fs::read_to_string(out.join("screen.modes.csv")).unwrap();
-    assert!(csv.starts_with("m,n,labels,predicted_hz,measured_hz,residual_cents"));
+    assert!(
+        csv.starts_with("m,n,labels,predicted_hz,measured_hz,measured_u_hz,crlb_hz,residual_cents")
+    );
 }
 
 #[test]

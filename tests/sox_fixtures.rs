@@ -251,3 +251,71 @@ fn two_tone_220_and_587p3() {
     check_format(&rec, 44_100.0, 1, 16, SampleFormat::Pcm, 0.4);
     check_two_strongest(&rec, 220.0, 587.3);
 }
+
+/// The frequency error of the partial nearest `f_true`, with and without
+/// the damped-sinusoid refinement.
+fn errors(rec: &Recording, f_true: f64) -> (f64, f64, Option<f64>) {
+    let nearest = |cfg: &AnalysisConfig| {
+        let a = analyse(rec, cfg).expect("analysis");
+        a.partials
+            .into_iter()
+            .min_by(|a, b| {
+                (a.frequency_hz - f_true)
+                    .abs()
+                    .total_cmp(&(b.frequency_hz - f_true).abs())
+            })
+            .expect("a partial")
+    };
+    let plain = nearest(&AnalysisConfig {
+        refine: false,
+        ..AnalysisConfig::default()
+    });
+    let refined = nearest(&AnalysisConfig::default());
+    (
+        (plain.frequency_hz - f_true).abs(),
+        (refined.frequency_hz - f_true).abs(),
+        refined.frequency_u_hz,
+    )
+}
+
+#[test]
+fn refinement_is_at_least_as_accurate_as_the_fft_peak() {
+    let cases: [(&str, ChannelChoice, f64); 7] = [
+        ("sine_440_48k_s16.wav", ChannelChoice::MixDown, 440.0),
+        ("sine_1234p5_44k1_s24.wav", ChannelChoice::MixDown, 1234.5),
+        ("sine_997_48k_f32.wav", ChannelChoice::MixDown, 997.0),
+        ("sine_500_8k_u8.wav", ChannelChoice::MixDown, 500.0),
+        (
+            "stereo_300L_700R_44k1_s16.wav",
+            ChannelChoice::Index(0),
+            300.0,
+        ),
+        (
+            "two_tone_220_587p3_44k1_s16.wav",
+            ChannelChoice::MixDown,
+            220.0,
+        ),
+        (
+            "two_tone_220_587p3_44k1_s16.wav",
+            ChannelChoice::MixDown,
+            587.3,
+        ),
+    ];
+    for (name, ch, f) in cases {
+        let rec = read(name, ch);
+        let (fft, refined, u) = errors(&rec, f);
+        // "At least as accurate", with 0.1 mHz for rounding in the WAV's
+        // own quantisation.
+        assert!(
+            refined <= fft + 1e-4,
+            "{name} at {f} Hz: refined error {refined:.6} Hz, FFT peak {fft:.6} Hz"
+        );
+        // The stated uncertainty covers the error (k = 3), allowing for
+        // the half-LSB quantisation the noise model does not see.
+        let u = u.expect("refined partial carries its uncertainty");
+        assert!(
+            refined <= 3.0 * u + 1e-4,
+            "{name} at {f} Hz: error {refined:.6} Hz against u {u:.6} Hz"
+        );
+    }
+}

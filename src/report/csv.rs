@@ -1,8 +1,10 @@
 //! CSV tables: the matched modes of one fit, and one summary row per
 //! recording for the demo.
 //!
-//! Mode table columns: `m,n,labels,predicted_hz,measured_hz,residual_cents,
-//! level_db,snr_db,t60_s,outlier`.
+//! Mode table columns: `m,n,labels,predicted_hz,measured_hz,measured_u_hz,
+//! crlb_hz,residual_cents,level_db,snr_db,t60_s,decay_rate_db_per_s,
+//! pair_lower_hz,pair_upper_hz,splitting_hz,splitting_u_hz,outlier`
+//! (empty where a value does not apply).
 
 use crate::pipeline::Measurement;
 
@@ -15,12 +17,20 @@ pub fn modes_csv(m: &Measurement) -> Result<String, csv::Error> {
         "labels",
         "predicted_hz",
         "measured_hz",
+        "measured_u_hz",
+        "crlb_hz",
         "residual_cents",
         "level_db",
         "snr_db",
         "t60_s",
+        "decay_rate_db_per_s",
+        "pair_lower_hz",
+        "pair_upper_hz",
+        "splitting_hz",
+        "splitting_u_hz",
         "outlier",
     ])?;
+    let opt = |v: Option<f64>, d: usize| v.map(|x| format!("{x:.d$}")).unwrap_or_default();
     for r in &m.modes {
         w.write_record([
             r.m.to_string(),
@@ -28,10 +38,17 @@ pub fn modes_csv(m: &Measurement) -> Result<String, csv::Error> {
             r.labels.clone(),
             format!("{:.4}", r.predicted_hz),
             format!("{:.4}", r.measured_hz),
+            opt(r.measured_u_hz, 5),
+            opt(r.crlb_hz, 5),
             format!("{:.3}", r.residual_cents),
             format!("{:.2}", r.level_db),
             format!("{:.2}", r.snr_db),
-            r.t60_s.map(|t| format!("{t:.4}")).unwrap_or_default(),
+            opt(r.t60_s, 4),
+            opt(r.decay_rate_db_per_s, 3),
+            opt(r.pair.map(|p| p.lower.frequency_hz), 4),
+            opt(r.pair.map(|p| p.upper.frequency_hz), 4),
+            opt(r.pair.map(|p| p.splitting_hz), 4),
+            opt(r.pair.map(|p| p.splitting_u_hz), 4),
             r.outlier.to_string(),
         ])?;
     }

@@ -10,7 +10,7 @@
 //! - `tension_over_density` {`value`, `unit` "m2/s2", `standard_uncertainty`}
 //! - `wave_speed` {`value`, `unit` "m/s", `standard_uncertainty`}
 //! - `effective_height` {`value`, `unit` "m", `standard_uncertainty`} or null
-//! - `modes`: [{`m`, `n`, `labels`, `predicted_hz`, `measured_hz`, `residual_cents`, `level_db`, `snr_db`, `t60_s`, `outlier`, `alternatives`}]
+//! - `modes`: [{`m`, `n`, `labels`, `predicted_hz`, `measured_hz`, `measured_u_hz`, `crlb_hz`, `residual_cents`, `level_db`, `snr_db`, `t60_s`, `decay_rate_db_per_s`, `method` (`fft_peak`/`damped_fit`), `degeneracy`, `pair` (null or a split pair, as in the partial record), `outlier`, `crowded`, `alternatives`}]
 //! - `missing_modes`: [{`labels`, `predicted_hz`, `coupling`}]
 //! - `unmatched_partials`: [{`frequency_hz`, `level_db`, `snr_db`, `t60_s`}]
 //! - `hum`: [{`frequency_hz`, `mains_hz`, `harmonic`}]
@@ -23,6 +23,15 @@
 //! - `taps` (several taps in the file): {`taps`: [{`onset_s`, `value`, `grade`, `modes`, `kept`, `reason`}], `combined` {value, standard_uncertainty}, `repeatability`, `unit`} or null
 //! - `warnings`: [{`kind`, `message`, …}]
 //! - `caution`: the safety note.
+//!
+//! The partial record (`tonus partials --json`, schema `tonus.partials/1`)
+//! lists each partial as {`frequency_hz`, `level_db`, `snr_db`,
+//! `prominence_db`, `decay_rate_db_per_s`, `t60_s`, `q`, `method`,
+//! `frequency_u_hz`, `crlb_hz`, `decay_rate_u_db_per_s`, `amplitude`,
+//! `pair`}, where `pair` is null or {`lower`, `upper` (each
+//! {`frequency_hz`, `frequency_u_hz`, `crlb_hz`, `decay_rate_db_per_s`,
+//! `t60_s`, `level_db`}), `splitting_hz`, `splitting_u_hz`,
+//! `splitting_cents`, `splitting_u_cents`}.
 
 use crate::fit::Estimate;
 use crate::membrane::Shape;
@@ -60,6 +69,12 @@ pub fn partial_json(p: &Partial) -> Value {
         "decay_rate_db_per_s": p.decay_rate_db_per_s,
         "t60_s": p.t60_s,
         "q": p.q,
+        "method": p.method,
+        "frequency_u_hz": p.frequency_u_hz,
+        "crlb_hz": p.crlb_hz,
+        "decay_rate_u_db_per_s": p.decay_rate_u_db_per_s,
+        "amplitude": p.amplitude,
+        "pair": p.pair,
     })
 }
 

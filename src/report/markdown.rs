@@ -144,7 +144,7 @@ pub fn fit_report(
     }
     if !m.modes.is_empty() {
         let _ = writeln!(s, "## Matched modes\n");
-        let _ = writeln!(s, "| mode | predicted Hz | measured Hz | residual cents | level dB | SNR dB | T60 s | note |\n|---|---:|---:|---:|---:|---:|---:|---|");
+        let _ = writeln!(s, "| mode | predicted Hz | measured Hz | u Hz | CRLB Hz | residual cents | level dB | SNR dB | decay dB/s | T60 s | note |\n|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|");
         for r in &m.modes {
             let mut note = Vec::new();
             if r.outlier {
@@ -156,15 +156,35 @@ pub fn fit_report(
             if !r.alternatives.is_empty() {
                 note.push(format!("or {}", r.alternatives.join(", ")));
             }
+            if let Some(p) = &r.pair {
+                note.push(format!(
+                    "split pair {:.3} and {:.3} Hz, splitting {:.3} ± {:.3} Hz ({:.2} ± {:.2} cents)",
+                    p.lower.frequency_hz,
+                    p.upper.frequency_hz,
+                    p.splitting_hz,
+                    p.splitting_u_hz,
+                    p.splitting_cents,
+                    p.splitting_u_cents
+                ));
+            }
+            let small = |v: Option<f64>| {
+                v.map(|x| crate::units::sig(x, 2))
+                    .unwrap_or_else(|| "–".into())
+            };
             let _ = writeln!(
                 s,
-                "| {} | {:.2} | {:.2} | {:+.2} | {:.1} | {:.1} | {} | {} |",
+                "| {} | {:.2} | {:.3} | {} | {} | {:+.2} | {:.1} | {:.1} | {} | {} | {} |",
                 r.labels,
                 r.predicted_hz,
                 r.measured_hz,
+                small(r.measured_u_hz),
+                small(r.crlb_hz),
                 r.residual_cents,
                 r.level_db,
                 r.snr_db,
+                r.decay_rate_db_per_s
+                    .map(|t| format!("{t:.1}"))
+                    .unwrap_or_else(|| "–".into()),
                 r.t60_s
                     .map(|t| format!("{t:.3}"))
                     .unwrap_or_else(|| "–".into()),

@@ -82,6 +82,10 @@ pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::Sp
             frequency_hz: p.frequency_hz,
             level_db: p.level_db,
             matched: matched.contains(&i),
+            t60_s: p.t60_s,
+            pair: p
+                .pair
+                .map(|q| (q.splitting_hz, q.lower.t60_s, q.upper.t60_s)),
         })
         .collect();
     let mut lines = Vec::new();

@@ -65,6 +65,11 @@ pub struct PlotPartial {
     pub level_db: f64,
     /// Whether the peak was assigned to a mode line.
     pub matched: bool,
+    /// T60 in seconds, when measured.
+    pub t60_s: Option<f64>,
+    /// A split pair in the peak: (splitting in Hz, T60 of the lower and
+    /// of the upper member in s).
+    pub pair: Option<(f64, f64, f64)>,
 }
 
 /// One predicted mode line.
@@ -109,7 +114,12 @@ pub const RESIDUAL_GUIDE_CENTS: f64 = 5.0;
 /// Height of the title and subtitle strip, in pixels.
 const HEADER_PX: u32 = 78;
 /// Fraction of the picture below the header given to the spectrum panel.
-const SPECTRUM_PANEL_FRACTION: f64 = 0.70;
+const SPECTRUM_PANEL_FRACTION: f64 = 0.58;
+/// Fraction of what remains below the spectrum given to the residuals
+/// (the rest shows the decay per partial).
+const RESIDUAL_PANEL_FRACTION: f64 = 0.5;
+/// Colour of the split-pair marks in the decay panel.
+const PAIR_COLOUR: RGBColor = RGBColor(96, 62, 170);
 /// Width reserved for the level / residual tick labels and axis name, in
 /// pixels. Equal in both panels so their x axes line up.
 const Y_LABEL_AREA_PX: u32 = 84;
@@ -407,8 +417,12 @@ fn render_rgb(plot: &SpectrumPlot) -> Result<Vec<u8>, String> {
         draw_header(&header, plot)?;
         let spectrum_px = (f64::from(HEIGHT_PX - HEADER_PX) * SPECTRUM_PANEL_FRACTION) as u32;
         let (top, bottom) = body.split_vertically(spectrum_px);
+        let residual_px =
+            (f64::from(HEIGHT_PX - HEADER_PX - spectrum_px) * RESIDUAL_PANEL_FRACTION) as u32;
+        let (middle, lowest) = bottom.split_vertically(residual_px);
         draw_spectrum_panel(&root, &top, plot)?;
-        draw_residual_panel(&bottom, plot)?;
+        draw_residual_panel(&middle, plot)?;
+        draw_decay_panel(&lowest, plot)?;
         root.present().map_err(draw_err)?;
     }
     Ok(buf)
@@ -666,6 +680,130 @@ fn draw_mode_labels<'b>(
     Ok(())
 }
 
+/// T60 of every partial on a log axis, at the spectrum's frequencies;
+/// a split pair shows both members joined by a bar and its splitting.
+fn draw_decay_panel(area: &Area<'_>, plot: &SpectrumPlot) -> Result<(), String> {
+    let x_max = plot.max_frequency_hz;
+    let in_view = |f: f64| f.is_finite() && f >= 0.0 && f <= x_max;
+    let mut t60s: Vec<f64> = plot
+        .partials
+        .iter()
+        .filter(|p| in_view(p.frequency_hz))
+        .flat_map(|p| {
+            let pair = p.pair.map(|(_, a, b)| [a, b]).unwrap_or([f64::NAN; 2]);
+            [p.t60_s.unwrap_or(f64::NAN), pair[0], pair[1]]
+        })
+        .filter(|t| t.is_finite() && *t > 0.0)
+        .collect();
+    t60s.sort_by(f64::total_cmp);
+    let (lo, hi) = match (t60s.first(), t60s.last()) {
+        (Some(&a), Some(&b)) => ((a / 1.5).max(1e-3), (b * 1.5).max(a * 3.0)),
+        _ => (0.01, 10.0),
+    };
+    let mut chart = ChartBuilder::on(area)
+        .margin_top(8)
+        .margin_bottom(8)
+        .margin_left(LEFT_MARGIN_PX)
+        .margin_right(RIGHT_MARGIN_PX)
+        .x_label_area_size(40)
+        .y_label_area_size(Y_LABEL_AREA_PX)
+        .build_cartesian_2d(0.0..x_max, (lo..hi).log_scale())
+        .map_err(draw_err)?;
+    let x_fmt = |v: &f64| format!("{v:.0}");
+    let y_fmt = |v: &f64| crate::units::sig(*v, 2);
+    chart
+        .configure_mesh()
+        .x_labels(14)
+        .y_labels(8)
+        .x_label_formatter(&x_fmt)
+        .y_label_formatter(&y_fmt)
+        .x_desc("frequency (Hz)")
+        .y_desc("T60 (s)")
+        .label_style(font(14.0).color(&INK))
+        .axis_desc_style(font(16.0).color(&INK))
+        .bold_line_style(GRID_BOLD_COLOUR)
+        .light_line_style(GRID_LIGHT_COLOUR)
+        .axis_style(RGBColor(120, 120, 120))
+        .draw()
+        .map_err(draw_err)?;
+    let visible = |p: &&PlotPartial| {
+        in_view(p.frequency_hz) && p.t60_s.is_some_and(|t| t.is_finite() && t > 0.0)
+    };
+    let singles: Vec<&PlotPartial> = plot
+        .partials
+        .iter()
+        .filter(visible)
+        .filter(|p| p.pair.is_none())
+        .collect();
+    chart
+        .draw_series(singles.iter().filter(|p| p.matched).map(|p| {
+            Circle::new(
+                (p.frequency_hz, p.t60_s.unwrap_or(1.0)),
+                4,
+                MATCHED_MARK_COLOUR.filled(),
+            )
+        }))
+        .map_err(draw_err)?;
+    chart
+        .draw_series(singles.iter().filter(|p| !p.matched).map(|p| {
+            Cross::new(
+                (p.frequency_hz, p.t60_s.unwrap_or(1.0)),
+                5,
+                UNMATCHED_MARK_COLOUR.stroke_width(2),
+            )
+        }))
+        .map_err(draw_err)?;
+    let pairs: Vec<(f64, f64, f64, f64)> = plot
+        .partials
+        .iter()
+        .filter(|p| in_view(p.frequency_hz))
+        .filter_map(|p| p.pair.map(|(d, a, b)| (p.frequency_hz, d, a, b)))
+        .filter(|&(_, _, a, b)| a.is_finite() && b.is_finite() && a > 0.0 && b > 0.0)
+        .collect();
+    if !pairs.is_empty() {
+        chart
+            .draw_series(pairs.iter().map(|&(f, _, a, b)| {
+                PathElement::new(
+                    vec![(f, a.clamp(lo, hi)), (f, b.clamp(lo, hi))],
+                    PAIR_COLOUR.stroke_width(2),
+                )
+            }))
+            .map_err(draw_err)?;
+        chart
+            .draw_series(pairs.iter().flat_map(|&(f, _, a, b)| {
+                [
+                    TriangleMarker::new((f, a.clamp(lo, hi)), 5, PAIR_COLOUR.filled()),
+                    TriangleMarker::new((f, b.clamp(lo, hi)), 5, PAIR_COLOUR.filled()),
+                ]
+            }))
+            .map_err(draw_err)?;
+        let style = font(12.0)
+            .color(&PAIR_COLOUR)
+            .pos(Pos::new(HPos::Left, VPos::Center));
+        let mut used = Occupied::default();
+        for &(f, d, a, b) in &pairs {
+            let (x, y) = chart.backend_coord(&(f, (a * b).sqrt().clamp(lo, hi)));
+            let text = format!("pair, {} Hz apart", crate::units::sig(d, 2));
+            let w = 7 * text.len() as i32;
+            if used.claim((x + 6, y - 7, x + 6 + w, y + 7)) {
+                area.draw(&Text::new(text, (x + 6, y), style.clone()))
+                    .map_err(draw_err)?;
+            }
+        }
+    }
+    if t60s.is_empty() {
+        let style = font(16.0)
+            .color(&GUIDE_COLOUR)
+            .pos(Pos::new(HPos::Center, VPos::Center));
+        let (xr, yr) = chart.plotting_area().get_pixel_range();
+        let root = chart.plotting_area().strip_coord_spec();
+        let at = ((xr.end - xr.start) / 2, (yr.end - yr.start) / 2);
+        root.draw(&Text::new("no decay measured", at, style))
+            .map_err(draw_err)?;
+    }
+    Ok(())
+}
+
 fn draw_residual_panel(area: &Area<'_>, plot: &SpectrumPlot) -> Result<(), String> {
     let x_max = plot.max_frequency_hz;
     let half = residual_range(&plot.lines);
@@ -867,6 +1005,12 @@ mod tests {
                     frequency_hz: f_meas,
                     level_db,
                     matched: true,
+                    t60_s: Some(1.2 * (modes[0].0 / f).sqrt()),
+                    pair: (k == 2).then_some((
+                        0.4,
+                        1.1 * (modes[0].0 / f).sqrt(),
+                        0.9 * (modes[0].0 / f).sqrt(),
+                    )),
                 });
             }
             lines.push(PlotLine {
@@ -883,6 +1027,8 @@ mod tests {
                 frequency_hz: f,
                 level_db,
                 matched: false,
+                t60_s: Some(0.3),
+                pair: None,
             });
         }
         for f in [50.0, 150.0] {

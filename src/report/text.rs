@@ -23,19 +23,25 @@ pub fn partials_table(file: &Path, a: &PartialAnalysis) -> String {
     );
     let _ = writeln!(
         s,
-        "{:>11} {:>9} {:>8} {:>8} {:>8}",
-        "freq [Hz]", "level[dB]", "SNR[dB]", "T60 [s]", "Q"
+        "{:>11} {:>9} {:>9} {:>9} {:>8} {:>9} {:>8} {:>8}",
+        "freq [Hz]", "u [Hz]", "CRLB [Hz]", "level[dB]", "SNR[dB]", "decay dB/s", "T60 [s]", "Q"
     );
     for p in &a.partials {
         let _ = writeln!(
             s,
-            "{:>11.3} {:>9.1} {:>8.1} {:>8} {:>8}",
+            "{:>11.3} {:>9} {:>9} {:>9.1} {:>8.1} {:>9} {:>8} {:>8}",
             p.frequency_hz,
+            opt(p.frequency_u_hz, 2),
+            opt(p.crlb_hz, 2),
             p.level_db,
             p.snr_db,
+            opt(p.decay_rate_db_per_s, 3),
             opt(p.t60_s, 3),
             opt(p.q, 3)
         );
+        if let Some(pair) = &p.pair {
+            let _ = writeln!(s, "{}", pair_line(pair));
+        }
     }
     for h in &a.hum {
         let _ = writeln!(
@@ -48,6 +54,20 @@ pub fn partials_table(file: &Path, a: &PartialAnalysis) -> String {
         let _ = writeln!(s, "warning: {w}");
     }
     s
+}
+
+/// One indented line describing a split pair.
+pub fn pair_line(pair: &crate::partials::SplitPair) -> String {
+    format!(
+        "{:>13}split pair: {} and {}, splitting {} ({}), T60 {} s and {} s",
+        "",
+        pm(pair.lower.frequency_hz, pair.lower.frequency_u_hz, "Hz"),
+        pm(pair.upper.frequency_hz, pair.upper.frequency_u_hz, "Hz"),
+        pm(pair.splitting_hz, pair.splitting_u_hz, "Hz"),
+        pm(pair.splitting_cents, pair.splitting_u_cents, "cents"),
+        sig(pair.lower.t60_s, 3),
+        sig(pair.upper.t60_s, 3)
+    )
 }
 
 /// Formats an estimate as "value ± u unit".
@@ -165,16 +185,17 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
         let _ = writeln!(s);
         let _ = writeln!(
             s,
-            "{:<13} {:>10} {:>10} {:>8} {:>7} {:>6} {:>7}",
-            "mode", "pred [Hz]", "meas [Hz]", "cents", "dB", "SNR", "T60 [s]"
+            "{:<13} {:>10} {:>10} {:>8} {:>8} {:>7} {:>6} {:>7}",
+            "mode", "pred [Hz]", "meas [Hz]", "u [Hz]", "cents", "dB", "SNR", "T60 [s]"
         );
         for r in &m.modes {
             let _ = writeln!(
                 s,
-                "{:<13} {:>10.2} {:>10.2} {:>8.2} {:>7.1} {:>6.1} {:>7}{}",
+                "{:<13} {:>10.2} {:>10.2} {:>8} {:>8.2} {:>7.1} {:>6.1} {:>7}{}",
                 r.labels,
                 r.predicted_hz,
                 r.measured_hz,
+                opt(r.measured_u_hz, 2),
                 r.residual_cents,
                 r.level_db,
                 r.snr_db,
@@ -187,6 +208,9 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                     ""
                 }
             );
+            if let Some(pair) = &r.pair {
+                let _ = writeln!(s, "{}", pair_line(pair));
+            }
         }
     }
     if !m.unmatched.is_empty() {
