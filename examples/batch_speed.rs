@@ -19,7 +19,9 @@
 //!   from `/proc/self/status`, reset before the run by writing 5 to
 //!   `/proc/self/clear_refs`.
 //!
-//! `TONUS_BENCH_COUNT=N` changes the 1,000. Rates depend on the load of
+//! `TONUS_BENCH_COUNT=N` changes the 1,000; `TONUS_BENCH_DIR=DIR` keeps
+//! the recordings in DIR (and reuses them), for profiling the binary on
+//! them (`perf record target/release/tonus inspect … DIR`). Rates depend on the load of
 //! the machine: the figures in the README were measured with nothing else
 //! running.
 
@@ -86,9 +88,11 @@ fn make_recordings(dir: &Path, count: usize) -> Vec<PathBuf> {
             cfg.sample_rate_hz = RATE_HZ;
             cfg.snr_db = 35.0;
             cfg.seed = i as u64 + 1;
-            let x = synthesise(&cfg).expect("synthesis");
             let p = dir.join(format!("tap-{i:04}.wav"));
-            write_wav(&p, &x, RATE_HZ, 16, false).expect("write");
+            if !p.exists() {
+                let x = synthesise(&cfg).expect("synthesis");
+                write_wav(&p, &x, RATE_HZ, 16, false).expect("write");
+            }
             p
         })
         .collect()
@@ -106,8 +110,24 @@ fn reset_hwm() -> bool {
     std::fs::write("/proc/self/clear_refs", "5").is_ok()
 }
 
-/// Runs the binary on `files`; returns (seconds, peak RSS KiB, exit code).
-fn run_binary(bin: &Path, spec: &Path, files: &[PathBuf], out: &Path) -> (f64, i64, i32) {
+/// User plus system CPU time in a rusage, s.
+fn cpu_s(u: &libc::rusage) -> f64 {
+    let t = |tv: libc::timeval| tv.tv_sec as f64 + tv.tv_usec as f64 * 1e-6;
+    t(u.ru_utime) + t(u.ru_stime)
+}
+
+/// CPU time of this process so far, s.
+fn self_cpu_s() -> f64 {
+    // SAFETY: getrusage fills the zeroed struct for this process.
+    let mut u: libc::rusage = unsafe { std::mem::zeroed() };
+    unsafe { libc::getrusage(libc::RUSAGE_SELF, &mut u) };
+    cpu_s(&u)
+}
+
+/// Runs the binary on `files`; returns (seconds, CPU seconds, peak RSS
+/// KiB, exit code).
+fn run_binary(bin: &Path, spec: &Path, files: &[PathBuf], out: &Path) -> (f64, f64, i64, i32) {
+    let _ = std::fs::remove_dir_all(out);
     // The file list goes through a folder of links so the command line
     // stays short whatever the count.
     let folder = out.with_extension("in");
@@ -146,7 +166,7 @@ fn run_binary(bin: &Path, spec: &Path, files: &[PathBuf], out: &Path) -> (f64, i
     } else {
         -1
     };
-    (secs, usage.ru_maxrss, code)
+    (secs, cpu_s(&usage), usage.ru_maxrss, code)
 }
 
 fn main() {
@@ -156,7 +176,9 @@ fn main() {
         .unwrap_or(1000);
     let quarter = (count / 4).max(1);
     let dir = tempfile::tempdir().expect("temporary folder");
-    let d = dir.path();
+    let kept = std::env::var_os("TONUS_BENCH_DIR").map(PathBuf::from);
+    let d = kept.as_deref().unwrap_or(dir.path());
+    std::fs::create_dir_all(d).expect("benchmark folder");
     let t0 = Instant::now();
     let files = make_recordings(d, count);
     println!(
@@ -181,17 +203,19 @@ fn main() {
         Some(bin) => {
             println!("\nbinary {}:", bin.display());
             println!(
-                "{:>8} {:>10} {:>16} {:>14} {:>5}",
-                "files", "wall [s]", "recordings/s", "peak RSS [MB]", "exit"
+                "{:>8} {:>10} {:>16} {:>10} {:>18} {:>14} {:>5}",
+                "files", "wall [s]", "recordings/s", "CPU [s]", "CPU ms/recording", "peak RSS [MB]", "exit"
             );
             for (n, label) in [(quarter, "quarter"), (count, "all")] {
                 let out = d.join(format!("out-bin-{label}"));
-                let (secs, rss_kib, code) = run_binary(bin, &spec_path, &files[..n], &out);
+                let (secs, cpu, rss_kib, code) = run_binary(bin, &spec_path, &files[..n], &out);
                 println!(
-                    "{:>8} {:>10.2} {:>16.0} {:>14.1} {:>5}",
+                    "{:>8} {:>10.2} {:>16.0} {:>10.2} {:>18.2} {:>14.1} {:>5}",
                     n,
                     secs,
                     n as f64 / secs,
+                    cpu,
+                    1e3 * cpu / n as f64,
                     rss_kib as f64 / 1024.0,
                     code
                 );
@@ -206,13 +230,15 @@ fn main() {
     let spec = tonus::spec::Spec::from_file(&spec_path).expect("spec");
     println!("\nin-process (tonus::batch::inspect):");
     println!(
-        "{:>8} {:>10} {:>16} {:>14}",
-        "files", "wall [s]", "recordings/s", "VmHWM [MB]"
+        "{:>8} {:>10} {:>16} {:>10} {:>18} {:>14}",
+        "files", "wall [s]", "recordings/s", "CPU [s]", "CPU ms/recording", "VmHWM [MB]"
     );
     let mut last = None;
     for (n, label) in [(quarter, "quarter"), (count, "all")] {
         let out = d.join(format!("out-lib-{label}"));
+        let _ = std::fs::remove_dir_all(&out);
         let reset = reset_hwm();
+        let cpu0 = self_cpu_s();
         let opts = tonus::batch::InspectOptions {
             out: out.clone(),
             history: Some(out.join("history.sqlite")),
@@ -224,12 +250,15 @@ fn main() {
         let (outcome, timing) =
             tonus::batch::inspect_timed(&spec, &files[..n], &opts, &mut |_| {}).expect("inspect");
         let secs = t0.elapsed().as_secs_f64();
+        let cpu = self_cpu_s() - cpu0;
         let hwm = vm_hwm_kib().map_or(f64::NAN, |k| k as f64 / 1024.0);
         println!(
-            "{:>8} {:>10.2} {:>16.0} {:>14.1}{}  exit {}",
+            "{:>8} {:>10.2} {:>16.0} {:>10.2} {:>18.2} {:>14.1}{}  exit {}",
             n,
             secs,
             n as f64 / secs,
+            cpu,
+            1e3 * cpu / n as f64,
             hwm,
             if reset { "" } else { " (peak not reset)" },
             outcome.exit
@@ -238,23 +267,26 @@ fn main() {
     }
     if let Some((n, t)) = last {
         println!("\nwhere the time goes ({n} recordings; stage seconds summed over threads for the parallel stages):");
-        println!(
-            "  read + SHA-256 (parallel)     {:>8.2} s  {:>6.2} ms/recording",
-            t.read_s,
-            1e3 * t.read_s / n as f64
-        );
-        println!(
-            "  fit + decide (parallel)       {:>8.2} s  {:>6.2} ms/recording",
-            t.fit_s,
-            1e3 * t.fit_s / n as f64
-        );
-        println!(
-            "  history insert (writer)       {:>8.2} s  {:>6.2} ms/recording",
-            t.history_s,
-            1e3 * t.history_s / n as f64
-        );
-        println!("  CSV/JSONL rewrite (writer)    {:>8.2} s", t.flush_s);
-        println!("  batch report                  {:>8.2} s", t.report_s);
-        println!("  wall                          {:>8.2} s", t.wall_s);
+        let row = |name: &str, secs: f64| {
+            println!(
+                "  {name:<30}{secs:>8.2} s  {:>6.2} ms/recording",
+                1e3 * secs / n as f64
+            )
+        };
+        row("read + SHA-256 (parallel)", t.read_s);
+        row("WAV decode (parallel)", t.decode_s);
+        row("measure (parallel)", t.measure_s);
+        row("decide + records (parallel)", t.record_s);
+        row("history insert (writer)", t.history_s);
+        println!("  {:<30}{:>8.2} s", "CSV/JSONL publish (writer)", t.flush_s);
+        println!("  {:<30}{:>8.2} s", "batch report", t.report_s);
+        println!("  {:<30}{:>8.2} s", "wall", t.wall_s);
     }
+    println!(
+        "\nThe load average was {} while this ran (2 cores: above 2, other work shared them).",
+        std::fs::read_to_string("/proc/loadavg")
+            .ok()
+            .and_then(|s| s.split_whitespace().next().map(String::from))
+            .unwrap_or_else(|| "unknown".into())
+    );
 }

@@ -106,8 +106,13 @@ pub struct WatchOptions {
 pub struct StageTiming {
     /// Reading the file and its SHA-256 (parallel).
     pub read_s: f64,
-    /// Decoding, fitting, deciding and formatting the records (parallel).
-    pub fit_s: f64,
+    /// Decoding the WAV (parallel).
+    pub decode_s: f64,
+    /// The measurement: partials, matching, fit, grade (parallel).
+    pub measure_s: f64,
+    /// Deciding and formatting the JSON record, the history row and the
+    /// CSV row (parallel).
+    pub record_s: f64,
     /// History inserts (writer thread).
     pub history_s: f64,
     /// Publishing the CSV and JSON Lines files (writer thread).
@@ -173,7 +178,9 @@ thread_local! {
 #[derive(Default)]
 struct Counters {
     read_ns: AtomicU64,
-    fit_ns: AtomicU64,
+    decode_ns: AtomicU64,
+    measure_ns: AtomicU64,
+    record_ns: AtomicU64,
 }
 
 fn add_elapsed(counter: &AtomicU64, since: Instant) {
@@ -190,14 +197,20 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
     add_elapsed(&counters.read_ns, t0);
     let t1 = Instant::now();
     let result = (|| -> Result<(Row, serde_json::Value, BatchEntry)> {
-        let rec = recording::read_wav(file, ChannelChoice::MixDown)?;
+        let rec = recording::read_wav(file, ChannelChoice::MixDown);
+        add_elapsed(&counters.decode_ns, t1);
+        let rec = rec?;
+        let t2 = Instant::now();
         let panel = spec.panel();
         let fit_opts = pipeline::FitOptions {
             model: spec.model.fit_model(),
             analysis: Default::default(),
         };
-        let m = PLANNER
-            .with(|p| pipeline::measure_with(&rec, &panel, &fit_opts, &mut p.borrow_mut()))?;
+        let m =
+            PLANNER.with(|p| pipeline::measure_with(&rec, &panel, &fit_opts, &mut p.borrow_mut()));
+        add_elapsed(&counters.measure_ns, t2);
+        let m = m?;
+        let t3 = Instant::now();
         let verdict = spec.decide(&m);
         let mut record = report::json::fit_record(file, &m, TensionUnit::NewtonPerMeter);
         if let serde_json::Value::Object(o) = &mut record {
@@ -243,6 +256,7 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
                 _ => None,
             },
         };
+        add_elapsed(&counters.record_ns, t3);
         Ok((row, record, entry))
     })();
     let item = match result {
@@ -272,7 +286,6 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
             }
         }
     };
-    add_elapsed(&counters.fit_ns, t1);
     item
 }
 
@@ -564,7 +577,10 @@ pub fn inspect_timed(
     bar.finish_and_clear();
     let (exit, mut timing) = writer.finish()?;
     timing.read_s = counters.read_ns.load(Ordering::Relaxed) as f64 * 1e-9;
-    timing.fit_s = counters.fit_ns.load(Ordering::Relaxed) as f64 * 1e-9;
+    let secs = |c: &AtomicU64| c.load(Ordering::Relaxed) as f64 * 1e-9;
+    timing.decode_s = secs(&counters.decode_ns);
+    timing.measure_s = secs(&counters.measure_ns);
+    timing.record_s = secs(&counters.record_ns);
     timing.wall_s = start.elapsed().as_secs_f64();
     Ok((
         Outcome {
