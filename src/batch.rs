@@ -509,10 +509,17 @@ fn progress_bar(len: usize, wanted: bool) -> ProgressBar {
         return ProgressBar::hidden();
     }
     let bar = ProgressBar::new(len as u64);
-    let style = ProgressStyle::with_template(
-        "{bar:40} {pos}/{len} recordings  {per_sec}  {eta} left  [{elapsed}]",
-    )
-    .unwrap_or_else(|_| ProgressStyle::default_bar());
+    // `{wide_bar}` takes what the terminal leaves, so the bar never wraps;
+    // the rate in whole recordings per second.
+    let style =
+        ProgressStyle::with_template("{wide_bar} {pos}/{len} recordings  {rate}  {eta} left")
+            .unwrap_or_else(|_| ProgressStyle::default_bar())
+            .with_key(
+                "rate",
+                |state: &indicatif::ProgressState, w: &mut dyn std::fmt::Write| {
+                    let _ = write!(w, "{:.0}/s", state.per_sec());
+                },
+            );
     bar.set_style(style);
     bar
 }
