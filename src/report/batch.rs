@@ -239,6 +239,33 @@ fn picture(
     encode_png(&buf, width, height)
 }
 
+/// Vertical distance kept between two line labels, pixels.
+const LABEL_PITCH_PX: i32 = 16;
+
+/// Places labels `(x, y, …)` at their lines' heights, in top-to-bottom
+/// order, at least `pitch` apart: overlapping neighbours are pushed apart
+/// and each crowded group is centred on its lines.
+fn spread_labels<T>(mut labels: Vec<(i32, i32, T)>, pitch: i32) -> Vec<(i32, i32, T)> {
+    labels.sort_by_key(|l| l.1);
+    let wanted: Vec<i32> = labels.iter().map(|l| l.1).collect();
+    let mut start = 0;
+    while start < labels.len() {
+        // A group: each label would touch the one before it.
+        let mut end = start + 1;
+        while end < labels.len() && wanted[end] - wanted[end - 1] < pitch {
+            end += 1;
+        }
+        let n = (end - start) as i32;
+        let centre = wanted[start..end].iter().sum::<i32>() / n;
+        let top = centre - pitch * (n - 1) / 2;
+        for (k, l) in labels[start..end].iter_mut().enumerate() {
+            l.1 = top + pitch * k as i32;
+        }
+        start = end;
+    }
+    labels
+}
+
 /// Tensions of the measured recordings with their 1-based positions.
 fn measured(s: &BatchSummary) -> Vec<(usize, &BatchEntry)> {
     s.entries
@@ -552,7 +579,7 @@ fn run_chart_png(
                 true,
             ),
         ];
-        let mut label_rows: Vec<i32> = Vec::new();
+        let mut labels: Vec<(i32, i32, (&String, &RGBColor))> = Vec::new();
         for (y, label, colour, dashed) in &labelled {
             if !(lo..=hi).contains(y) {
                 continue;
@@ -571,12 +598,10 @@ fn run_chart_png(
                     .draw_series(LineSeries::new(hline(*y), colour.stroke_width(2)))
                     .map_err(draw_err)?;
             }
-            // Push a label down (or up) when it would overlap the last.
-            let (px, mut py) = chart.backend_coord(&(x_end, *y));
-            while label_rows.iter().any(|&r| (r - py).abs() < 16) {
-                py += 16;
-            }
-            label_rows.push(py);
+            let (px, py) = chart.backend_coord(&(x_end, *y));
+            labels.push((px, py, (label, colour)));
+        }
+        for (px, py, (label, colour)) in spread_labels(labels, LABEL_PITCH_PX) {
             root.draw(&Text::new(
                 label.clone(),
                 (px + 8, py),
@@ -1496,6 +1521,17 @@ impl Drop for Spool {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn close_labels_keep_their_order_and_spread_about_their_lines() {
+        let out = spread_labels(
+            vec![(0, 100, 'a'), (0, 40, 'b'), (0, 104, 'c'), (0, 108, 'd')],
+            16,
+        );
+        let ys: Vec<(i32, char)> = out.iter().map(|l| (l.1, l.2)).collect();
+        // b stands alone; a, c, d (wanted 100, 104, 108) centre on 104.
+        assert_eq!(ys, vec![(40, 'b'), (88, 'a'), (104, 'c'), (120, 'd')]);
+    }
 
     #[test]
     fn base64_matches_the_rfc_4648_test_vectors() {
