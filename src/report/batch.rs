@@ -999,7 +999,7 @@ fn sections(s: &BatchSummary, pics: &Pictures) -> Vec<(String, String)> {
         );
         let _ = writeln!(
             b,
-            "{} measured recordings; mean {} N/m, sample standard deviation s = {} N/m, range {} … {} N/m. Bars hold about √n bins; the red lines are the limits L and H.",
+            "{} measured recordings; mean {} N/m, sample standard deviation s = {} N/m, range {} … {} N/m. About √n bins, with edges on the limits; the red lines are the limits L and H.",
             values.len(),
             opt(stats::mean(&values), 1),
             opt(stats::std_dev(&values), 2),
