@@ -1207,8 +1207,8 @@ fn sections(s: &BatchSummary, pics: &Pictures) -> Vec<(String, String)> {
     out
 }
 
-fn short_hash(h: &str) -> &str {
-    &h[..h.len().min(12)]
+fn short_hash(h: &str) -> String {
+    h.chars().take(12).collect()
 }
 
 fn markdown_with(s: &BatchSummary, pics: &Pictures) -> String {
