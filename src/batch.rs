@@ -1,14 +1,40 @@
 //! `inspect`: decide a batch of recordings against a specification, in
-//! parallel, with a record of every decision.
+//! parallel, with a record of every decision; and `inspect --watch`, the
+//! station mode that decides each recording as it lands in a folder.
 //!
 //! Each recording is read, fitted with the specification's panel and
 //! decided by its rule ([`crate::decision`]). A file that cannot be read or
-//! fitted becomes a row with its error; the batch goes on. Every decision
-//! goes into the SQLite history as soon as it is made (each row its own
-//! transaction, so a crash keeps every completed row). The CSV table and
-//! the JSON Lines file are written atomically (temporary file, rename)
-//! every [`FLUSH_EVERY`] recordings and at the end, so they are never half
-//! written and never lag far behind the history.
+//! fitted becomes a row with its error; the batch goes on.
+//!
+//! # Outputs and crash safety
+//!
+//! - Every decision goes into the SQLite history as soon as it is made
+//!   (each row its own transaction, so a crash keeps every completed row).
+//! - `inspect.csv` and `inspect.jsonl` grow in private spool files
+//!   ([`report::batch::Spool`]) and are published atomically (copy,
+//!   rename) after every [`FLUSH_EVERY`] recordings but at most once per
+//!   [`FLUSH_INTERVAL`], and at the end; in watch mode after every
+//!   recording. They are never half written, and memory does not grow
+//!   with the batch.
+//! - The batch report (`batch-report.md`, `batch-report.html` and its
+//!   pictures, [`report::batch`]) is written at the end.
+//!
+//! # Parallelism
+//!
+//! Recordings are decided in chunks of [`FLUSH_EVERY`] on the rayon pool by
+//! a compute thread, one chunk ahead of the calling thread, which writes
+//! the history rows and outputs in batch order. Each rayon thread keeps its
+//! own FFT planner.
+//!
+//! # Watch mode
+//!
+//! The folder is listed every poll interval. Files already there when the
+//! watch starts are left alone. A new file counts as landed when its name
+//! ends in `.wav` (any case) and its size (non-zero) and modification time
+//! are the same in two consecutive polls. Writers should write under
+//! another name (`NAME.wav.part`, `NAME.tmp`) and rename to `NAME.wav`
+//! when done, which is atomic on one file system; the stability test
+//! covers copies that do not.
 //!
 //! CSV columns: `file,sha256,time,tension_n_per_m,tension_u_n_per_m,
 //! expanded_u_n_per_m,wave_speed_m_per_s,wave_speed_u_m_per_s,modes_used,
@@ -21,18 +47,35 @@ use crate::history::{History, RecordingContext, Row, UtcTime};
 use crate::pipeline;
 use crate::recording::{self, ChannelChoice};
 use crate::report;
+use crate::report::batch::{BatchEntry, BatchSummary, Spool};
 use crate::spec::{sha256_hex, Spec};
 use crate::units::TensionUnit;
+use indicatif::{ProgressBar, ProgressStyle};
 use rayon::prelude::*;
+use std::cell::RefCell;
+use std::collections::{HashMap, HashSet};
+use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::time::{Duration, Instant, SystemTime};
 
-/// Recordings between two rewrites of the CSV and JSON Lines files.
+/// Recordings decided together, and between two publications of the CSV
+/// and JSON Lines files.
 pub const FLUSH_EVERY: usize = 64;
+/// Shortest time between two publications of the CSV and JSON Lines files
+/// during a batch (each publication copies the whole file).
+pub const FLUSH_INTERVAL: Duration = Duration::from_secs(1);
+/// Default poll interval of the watch mode, s.
+pub const WATCH_INTERVAL_DEFAULT_S: f64 = 0.5;
+/// Shortest poll interval allowed, s.
+pub const WATCH_INTERVAL_MIN_S: f64 = 0.05;
+/// Longest poll interval allowed, s.
+pub const WATCH_INTERVAL_MAX_S: f64 = 10.0;
 
 /// Where the batch writes.
 #[derive(Debug, Clone)]
 pub struct InspectOptions {
-    /// Folder for `inspect.csv` and `inspect.jsonl`.
+    /// Folder for `inspect.csv`, `inspect.jsonl` and the batch report.
     pub out: PathBuf,
     /// History database (None: no history).
     pub history: Option<PathBuf>,
@@ -40,13 +83,52 @@ pub struct InspectOptions {
     pub station: Option<String>,
     /// Operator name.
     pub operator: Option<String>,
+    /// Show a progress bar, when standard error is a terminal.
+    pub progress: bool,
+}
+
+/// How the watch mode polls and when it stops.
+#[derive(Debug, Clone)]
+pub struct WatchOptions {
+    /// The folder recordings land in.
+    pub dir: PathBuf,
+    /// Time between two listings.
+    pub interval: Duration,
+    /// Stop after this many recordings (None: no limit).
+    pub limit: Option<usize>,
+    /// Stop after this long (None: run until stopped).
+    pub timeout: Option<Duration>,
+}
+
+/// Seconds spent in each stage of a batch; the parallel stages are summed
+/// over threads.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct StageTiming {
+    /// Reading the file and its SHA-256 (parallel).
+    pub read_s: f64,
+    /// Decoding the WAV (parallel).
+    pub decode_s: f64,
+    /// The measurement: partials, matching, fit, grade (parallel).
+    pub measure_s: f64,
+    /// Deciding and formatting the JSON record, the history row and the
+    /// CSV row (parallel).
+    pub record_s: f64,
+    /// History inserts (writer thread).
+    pub history_s: f64,
+    /// Publishing the CSV and JSON Lines files (writer thread).
+    pub flush_s: f64,
+    /// The batch report.
+    pub report_s: f64,
+    /// The whole call.
+    pub wall_s: f64,
 }
 
 /// Expands folders into their `.wav` files (sorted); files are kept as
 /// given.
 ///
 /// # Errors
-/// A path that does not exist.
+/// A path that does not exist or a folder that cannot be listed, and an
+/// input list that holds no recording at all.
 pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
     let mut out = Vec::new();
     for p in inputs {
@@ -57,7 +139,7 @@ pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
                     reason: e.to_string(),
                 })?
                 .filter_map(|e| e.ok().map(|e| e.path()))
-                .filter(|x| x.extension().is_some_and(|e| e.eq_ignore_ascii_case("wav")))
+                .filter(|x| is_wav_name(x))
                 .collect();
             v.sort();
             out.extend(v);
@@ -65,32 +147,70 @@ pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
             out.push(p.clone());
         }
     }
+    if out.is_empty() {
+        return Err(TonusError::Io {
+            path: inputs.first().cloned().unwrap_or_default(),
+            reason: "no .wav recording there; give recordings or folders that hold them".into(),
+        });
+    }
     Ok(out)
 }
 
-/// One recording's outcome.
-struct Item {
-    file: PathBuf,
-    sha: String,
-    time: UtcTime,
-    row: Option<Row>,
-    json: serde_json::Value,
-    error: Option<String>,
-    line: String,
+fn is_wav_name(p: &Path) -> bool {
+    p.extension().is_some_and(|e| e.eq_ignore_ascii_case("wav"))
 }
 
-fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions) -> Item {
+/// One recording's outcome, formatted on the worker thread.
+struct Item {
+    row: Option<Row>,
+    csv_row: Vec<u8>,
+    json_line: String,
+    entry: BatchEntry,
+}
+
+thread_local! {
+    /// One FFT planner per thread: plans are cached by length, and every
+    /// recording of a batch has about the same length.
+    static PLANNER: RefCell<realfft::RealFftPlanner<f64>> = RefCell::new(realfft::RealFftPlanner::new());
+}
+
+/// Nanosecond counters behind [`StageTiming`]'s parallel stages.
+#[derive(Default)]
+struct Counters {
+    read_ns: AtomicU64,
+    decode_ns: AtomicU64,
+    measure_ns: AtomicU64,
+    record_ns: AtomicU64,
+}
+
+fn add_elapsed(counter: &AtomicU64, since: Instant) {
+    let ns = u64::try_from(since.elapsed().as_nanos()).unwrap_or(u64::MAX);
+    counter.fetch_add(ns, Ordering::Relaxed);
+}
+
+fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counters) -> Item {
+    let t0 = Instant::now();
     let time = UtcTime::now();
     let bytes = std::fs::read(file);
     let sha = bytes.as_ref().map(|b| sha256_hex(b)).unwrap_or_default();
-    let result = (|| -> Result<(Row, serde_json::Value, String)> {
-        let rec = recording::read_wav(file, ChannelChoice::MixDown)?;
+    drop(bytes);
+    add_elapsed(&counters.read_ns, t0);
+    let t1 = Instant::now();
+    let result = (|| -> Result<(Row, serde_json::Value, BatchEntry)> {
+        let rec = recording::read_wav(file, ChannelChoice::MixDown);
+        add_elapsed(&counters.decode_ns, t1);
+        let rec = rec?;
+        let t2 = Instant::now();
         let panel = spec.panel();
         let fit_opts = pipeline::FitOptions {
             model: spec.model.fit_model(),
             analysis: Default::default(),
         };
-        let m = pipeline::measure(&rec, &panel, &fit_opts)?;
+        let m =
+            PLANNER.with(|p| pipeline::measure_with(&rec, &panel, &fit_opts, &mut p.borrow_mut()));
+        add_elapsed(&counters.measure_ns, t2);
+        let m = m?;
+        let t3 = Instant::now();
         let verdict = spec.decide(&m);
         let mut record = report::json::fit_record(file, &m, TensionUnit::NewtonPerMeter);
         if let serde_json::Value::Object(o) = &mut record {
@@ -98,7 +218,10 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions) -> Item {
                 "decision".into(),
                 serde_json::to_value(&verdict).unwrap_or_default(),
             );
-            o.insert("spec".into(), serde_json::json!({"name": spec.name, "version": spec.version, "sha256": spec.hash}));
+            o.insert(
+                "spec".into(),
+                serde_json::json!({"name": spec.name, "version": spec.version, "sha256": spec.hash}),
+            );
             o.insert(
                 "recording_sha256".into(),
                 serde_json::Value::String(sha.clone()),
@@ -111,158 +234,478 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions) -> Item {
             operator: opts.operator.clone(),
         };
         let row = Row::from_decision(&ctx, spec, &m, &verdict, record.to_string());
-        let t = m
-            .tension
-            .map(|t| format!("{:.1} N/m", t.value))
-            .unwrap_or_else(|| "–".into());
-        let margin = verdict
-            .margin
-            .as_ref()
-            .map(|mg| {
-                format!(
-                    "margin {:+.1} N/m to the {} limit",
-                    mg.n_per_m,
-                    format!("{:?}", mg.nearest_limit).to_lowercase()
-                )
-            })
-            .unwrap_or_default();
-        let line = format!(
-            "{:<14} {:<30} {:>12}  {}",
-            verdict.decision.name().to_uppercase(),
-            file.display(),
-            t,
-            margin
-        );
-        Ok((row, record, line))
+        let input = spec.decision_input(&m);
+        let entry = BatchEntry {
+            file: file.display().to_string(),
+            decision: verdict.decision.name().to_string(),
+            tension_n_per_m: input.tension.map(|t| t.value),
+            tension_u_n_per_m: input.tension.map(|t| t.standard_uncertainty),
+            expanded_u_n_per_m: verdict.expanded_uncertainty_n_per_m,
+            margin_n_per_m: verdict.margin.map(|mg| mg.n_per_m),
+            nearest_limit: verdict
+                .margin
+                .map(|mg| format!("{:?}", mg.nearest_limit).to_lowercase()),
+            anisotropy_percent: m.biaxial.as_ref().map(|b| b.anisotropy_percent.value),
+            anisotropy_u_percent: m
+                .biaxial
+                .as_ref()
+                .map(|b| b.anisotropy_percent.standard_uncertainty),
+            grade: Some(m.quality.grade.name().to_string()),
+            reason: match &verdict.decision {
+                Decision::NotMeasured { reason } => Some(reason.clone()),
+                _ => None,
+            },
+        };
+        add_elapsed(&counters.record_ns, t3);
+        Ok((row, record, entry))
     })();
-    match result {
-        Ok((row, json, line)) => Item {
-            file: file.to_path_buf(),
-            sha,
-            time,
-            row: Some(row),
-            json,
-            error: None,
-            line,
-        },
-        Err(e) => Item {
-            file: file.to_path_buf(),
-            sha,
-            time,
-            row: None,
-            json: serde_json::json!({"file": file.display().to_string(), "error": e.to_string()}),
-            error: Some(e.to_string()),
-            line: format!("{:<14} {:<30} {}", "ERROR", file.display(), e),
-        },
-    }
-}
-
-fn csv_text(items: &[Item]) -> Result<String> {
-    let mut w = csv::Writer::from_writer(Vec::new());
-    let err = |e: csv::Error| TonusError::Write {
-        path: PathBuf::from("inspect.csv"),
-        reason: e.to_string(),
+    let item = match result {
+        Ok((row, json, entry)) => {
+            let csv_row = csv_row(&sha, time, Some(&row), &json, None);
+            Item {
+                row: Some(row),
+                csv_row,
+                json_line: json.to_string(),
+                entry,
+            }
+        }
+        Err(e) => {
+            let json =
+                serde_json::json!({"file": file.display().to_string(), "error": e.to_string()});
+            let entry = BatchEntry {
+                file: file.display().to_string(),
+                decision: "error".into(),
+                reason: Some(e.to_string()),
+                ..Default::default()
+            };
+            Item {
+                row: None,
+                csv_row: csv_row(&sha, time, None, &json, Some(&e.to_string())),
+                json_line: json.to_string(),
+                entry,
+            }
+        }
     };
-    w.write_record([
-        "file",
-        "sha256",
-        "time",
-        "tension_n_per_m",
-        "tension_u_n_per_m",
-        "expanded_u_n_per_m",
-        "wave_speed_m_per_s",
-        "wave_speed_u_m_per_s",
-        "modes_used",
-        "rms_residual_cents",
-        "grade",
-        "decision",
-        "rule",
-        "margin_n_per_m",
-        "reasons",
-        "error",
-    ])
-    .map_err(err)?;
+    item
+}
+
+/// The line printed for each recording of a batch.
+fn batch_line(e: &BatchEntry) -> String {
+    if e.decision == "error" {
+        return format!(
+            "{:<14} {:<30} {}",
+            "ERROR",
+            e.file,
+            e.reason.as_deref().unwrap_or("")
+        );
+    }
+    let t = e
+        .tension_n_per_m
+        .map(|t| format!("{t:.1} N/m"))
+        .unwrap_or_else(|| "–".into());
+    let margin = match (e.margin_n_per_m, &e.nearest_limit) {
+        (Some(m), Some(side)) => format!("margin {m:+.1} N/m to the {side} limit"),
+        _ => String::new(),
+    };
+    format!(
+        "{:<14} {:<30} {:>12}  {}",
+        e.decision.to_uppercase(),
+        e.file,
+        t,
+        margin
+    )
+}
+
+/// The one big line of the watch mode: the decision framed so that it
+/// reads from across the room, the tension, the margin, the file.
+pub fn station_line(e: &BatchEntry) -> String {
+    let word = match e.decision.as_str() {
+        "not_measured" => "NOT MEASURED".to_string(),
+        other => other.to_uppercase(),
+    };
+    let framed = format!("{:=^20}", format!(" {word} "));
+    let file = Path::new(&e.file)
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| e.file.clone());
+    match (e.tension_n_per_m, e.margin_n_per_m, &e.nearest_limit) {
+        (Some(t), Some(m), Some(side)) if e.decision != "not_measured" => {
+            format!("{framed}  T = {t:.1} N/m  margin {m:+.1} N/m to the {side} limit  {file}")
+        }
+        _ => format!(
+            "{framed}  {}  {file}",
+            e.reason.as_deref().unwrap_or("no decision")
+        ),
+    }
+}
+
+const CSV_HEADER: [&str; 16] = [
+    "file",
+    "sha256",
+    "time",
+    "tension_n_per_m",
+    "tension_u_n_per_m",
+    "expanded_u_n_per_m",
+    "wave_speed_m_per_s",
+    "wave_speed_u_m_per_s",
+    "modes_used",
+    "rms_residual_cents",
+    "grade",
+    "decision",
+    "rule",
+    "margin_n_per_m",
+    "reasons",
+    "error",
+];
+
+fn csv_record(fields: &[String]) -> Vec<u8> {
+    let mut w = csv::WriterBuilder::new()
+        .has_headers(false)
+        .from_writer(Vec::new());
+    // Writing to memory cannot fail; an empty row would show as such.
+    let _ = w.write_record(fields);
+    w.into_inner().unwrap_or_default()
+}
+
+fn csv_row(
+    sha: &str,
+    time: UtcTime,
+    r: Option<&Row>,
+    json: &serde_json::Value,
+    error: Option<&str>,
+) -> Vec<u8> {
+    let d = &json["decision"];
     let f = |v: Option<f64>| v.map(|x| format!("{x:.4}")).unwrap_or_default();
-    for it in items {
-        let r = it.row.as_ref();
-        let d = &it.json["decision"];
-        w.write_record([
-            it.file.display().to_string(),
-            it.sha.clone(),
-            it.time.to_rfc3339(),
-            f(r.and_then(|r| r.tension_n_per_m)),
-            f(r.and_then(|r| r.tension_u_n_per_m)),
-            f(d["expanded_uncertainty_n_per_m"].as_f64()),
-            f(r.and_then(|r| r.wave_speed_m_per_s)),
-            f(r.and_then(|r| r.wave_speed_u_m_per_s)),
-            r.and_then(|r| r.modes_used)
-                .map(|m| m.to_string())
-                .unwrap_or_default(),
-            f(r.and_then(|r| r.rms_residual_cents)),
-            r.map(|r| r.grade.clone()).unwrap_or_default(),
-            r.map(|r| r.decision.clone())
-                .unwrap_or_else(|| "error".into()),
-            r.map(|r| r.rule.clone()).unwrap_or_default(),
-            f(d["margin"]["n_per_m"].as_f64()),
-            r.map(|r| r.reasons.join("; ")).unwrap_or_default(),
-            it.error.clone().unwrap_or_default(),
-        ])
-        .map_err(err)?;
-    }
-    let bytes = w.into_inner().map_err(|e| TonusError::Write {
-        path: PathBuf::from("inspect.csv"),
-        reason: e.to_string(),
-    })?;
-    Ok(String::from_utf8_lossy(&bytes).into_owned())
+    let fields = [
+        json["file"].as_str().unwrap_or_default().to_string(),
+        sha.to_string(),
+        time.to_rfc3339(),
+        f(r.and_then(|r| r.tension_n_per_m)),
+        f(r.and_then(|r| r.tension_u_n_per_m)),
+        f(d["expanded_uncertainty_n_per_m"].as_f64()),
+        f(r.and_then(|r| r.wave_speed_m_per_s)),
+        f(r.and_then(|r| r.wave_speed_u_m_per_s)),
+        r.and_then(|r| r.modes_used)
+            .map(|m| m.to_string())
+            .unwrap_or_default(),
+        f(r.and_then(|r| r.rms_residual_cents)),
+        r.map(|r| r.grade.clone()).unwrap_or_default(),
+        r.map(|r| r.decision.clone())
+            .unwrap_or_else(|| "error".into()),
+        r.map(|r| r.rule.clone()).unwrap_or_default(),
+        f(d["margin"]["n_per_m"].as_f64()),
+        r.map(|r| r.reasons.join("; ")).unwrap_or_default(),
+        error.unwrap_or_default().to_string(),
+    ];
+    csv_record(&fields)
 }
 
-fn flush(out: &Path, items: &[Item]) -> Result<()> {
-    report::write_atomic(&out.join("inspect.csv"), csv_text(items)?.as_bytes())?;
-    let mut lines = String::new();
-    for it in items {
-        lines.push_str(&it.json.to_string());
-        lines.push('\n');
-    }
-    report::write_atomic(&out.join("inspect.jsonl"), lines.as_bytes())
+/// The calling thread's side of a batch: history, outputs, summary.
+struct Writer<'a> {
+    spec: &'a Spec,
+    opts: &'a InspectOptions,
+    history: Option<History>,
+    csv: Spool,
+    jsonl: Spool,
+    entries: Vec<BatchEntry>,
+    all_pass: bool,
+    unpublished: usize,
+    last_publish: Instant,
+    timing: StageTiming,
 }
 
-/// Decides every recording; exit 0 if all pass, 1 otherwise.
+impl<'a> Writer<'a> {
+    fn open(spec: &'a Spec, opts: &'a InspectOptions) -> Result<Writer<'a>> {
+        std::fs::create_dir_all(&opts.out).map_err(|e| TonusError::Write {
+            path: opts.out.clone(),
+            reason: e.to_string(),
+        })?;
+        let history = opts.history.as_deref().map(History::open).transpose()?;
+        Ok(Writer {
+            spec,
+            opts,
+            history,
+            csv: Spool::create(
+                &opts.out.join("inspect.csv"),
+                &csv_record(&CSV_HEADER.map(String::from)),
+            )?,
+            jsonl: Spool::create(&opts.out.join("inspect.jsonl"), b"")?,
+            entries: Vec::new(),
+            all_pass: true,
+            unpublished: 0,
+            last_publish: Instant::now(),
+            timing: StageTiming::default(),
+        })
+    }
+
+    /// Records one decided recording; returns its entry.
+    fn take(&mut self, it: Item) -> Result<&BatchEntry> {
+        if let (Some(h), Some(row)) = (self.history.as_mut(), it.row.as_ref()) {
+            let t = Instant::now();
+            h.insert(row)?;
+            self.timing.history_s += t.elapsed().as_secs_f64();
+        }
+        self.all_pass &= it.entry.decision == Decision::Pass.name();
+        self.csv.append(&it.csv_row)?;
+        self.jsonl.append(it.json_line.as_bytes())?;
+        self.jsonl.append(b"\n")?;
+        self.unpublished += 1;
+        self.entries.push(it.entry);
+        Ok(&self.entries[self.entries.len() - 1])
+    }
+
+    /// Publishes the CSV and JSON Lines files when `force`, or when enough
+    /// rows and time have gone by.
+    fn publish(&mut self, force: bool) -> Result<()> {
+        let due = self.unpublished >= FLUSH_EVERY && self.last_publish.elapsed() >= FLUSH_INTERVAL;
+        if self.unpublished == 0 || !(force || due) {
+            return Ok(());
+        }
+        let t = Instant::now();
+        self.csv.publish()?;
+        self.jsonl.publish()?;
+        self.timing.flush_s += t.elapsed().as_secs_f64();
+        self.unpublished = 0;
+        self.last_publish = Instant::now();
+        Ok(())
+    }
+
+    /// Last publication, the batch report; the exit status.
+    fn finish(mut self) -> Result<(u8, StageTiming)> {
+        let t = Instant::now();
+        self.csv.finish()?;
+        self.jsonl.finish()?;
+        self.timing.flush_s += t.elapsed().as_secs_f64();
+        let t = Instant::now();
+        let summary = summary(self.spec, self.opts, std::mem::take(&mut self.entries));
+        report::batch::write_batch_report(&self.opts.out, &summary)?;
+        self.timing.report_s = t.elapsed().as_secs_f64();
+        Ok((if self.all_pass { 0 } else { 1 }, self.timing))
+    }
+}
+
+fn summary(spec: &Spec, opts: &InspectOptions, entries: Vec<BatchEntry>) -> BatchSummary {
+    BatchSummary {
+        spec_name: spec.name.clone(),
+        spec_version: spec.version.clone(),
+        spec_sha256: spec.hash.clone(),
+        model: spec.model.name().to_string(),
+        rule: spec.rule.rule.name().to_string(),
+        rule_description: spec.rule.rule.description().to_string(),
+        coverage_factor: spec.rule.coverage_factor,
+        nominal_n_per_m: spec.limits.nominal_n_per_m,
+        lower_n_per_m: spec.limits.lower_n_per_m,
+        upper_n_per_m: spec.limits.upper_n_per_m,
+        max_anisotropy_percent: spec.limits.max_anisotropy_percent,
+        generated: UtcTime::now().to_rfc3339(),
+        station: opts.station.clone(),
+        operator: opts.operator.clone(),
+        entries,
+    }
+}
+
+fn progress_bar(len: usize, wanted: bool) -> ProgressBar {
+    if !(wanted && std::io::stderr().is_terminal()) {
+        return ProgressBar::hidden();
+    }
+    let bar = ProgressBar::new(len as u64);
+    // `{wide_bar}` takes what the terminal leaves, so the bar never wraps;
+    // the rate in whole recordings per second.
+    let style =
+        ProgressStyle::with_template("{wide_bar} {pos}/{len} recordings  {rate}  {eta} left")
+            .unwrap_or_else(|_| ProgressStyle::default_bar())
+            .with_key(
+                "rate",
+                |state: &indicatif::ProgressState, w: &mut dyn std::fmt::Write| {
+                    let _ = write!(w, "{:.0}/s", state.per_sec());
+                },
+            );
+    bar.set_style(style);
+    bar
+}
+
+/// Decides every recording, printing one line each through `emit` (in
+/// batch order, as they are decided); exit 0 if all pass, 1 otherwise.
 ///
 /// # Errors
 /// An unusable output folder or history database (a bad recording is a
 /// row, not an error).
-pub fn inspect(spec: &Spec, files: &[PathBuf], opts: &InspectOptions) -> Result<Outcome> {
-    std::fs::create_dir_all(&opts.out).map_err(|e| TonusError::Write {
-        path: opts.out.clone(),
-        reason: e.to_string(),
-    })?;
-    let mut history = opts.history.as_deref().map(History::open).transpose()?;
-    let mut items: Vec<Item> = Vec::with_capacity(files.len());
-    let mut stdout = String::new();
-    let mut all_pass = true;
-    for chunk in files.chunks(FLUSH_EVERY) {
-        let done: Vec<Item> = chunk
-            .par_iter()
-            .map(|f| decide_one(spec, f, opts))
-            .collect();
-        for it in done {
-            if let (Some(h), Some(row)) = (history.as_mut(), it.row.as_ref()) {
-                h.insert(row)?;
+pub fn inspect(
+    spec: &Spec,
+    files: &[PathBuf],
+    opts: &InspectOptions,
+    emit: &mut dyn FnMut(&str),
+) -> Result<Outcome> {
+    inspect_timed(spec, files, opts, emit).map(|(o, _)| o)
+}
+
+/// As [`inspect`], with the time spent in each stage.
+///
+/// # Errors
+/// As [`inspect`].
+pub fn inspect_timed(
+    spec: &Spec,
+    files: &[PathBuf],
+    opts: &InspectOptions,
+    emit: &mut dyn FnMut(&str),
+) -> Result<(Outcome, StageTiming)> {
+    let start = Instant::now();
+    let mut writer = Writer::open(spec, opts)?;
+    let bar = progress_bar(files.len(), opts.progress);
+    let counters = Counters::default();
+    std::thread::scope(|scope| -> Result<()> {
+        let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<Item>>(1);
+        let (bar_w, counters) = (&bar, &counters);
+        scope.spawn(move || {
+            for chunk in files.chunks(FLUSH_EVERY) {
+                let items: Vec<Item> = chunk
+                    .par_iter()
+                    .map(|f| {
+                        let it = decide_one(spec, f, opts, counters);
+                        bar_w.inc(1);
+                        it
+                    })
+                    .collect();
+                // The writer stopped on an error: stop deciding.
+                if tx.send(items).is_err() {
+                    return;
+                }
             }
-            let pass = it
-                .row
-                .as_ref()
-                .is_some_and(|r| r.decision == Decision::Pass.name());
-            all_pass &= pass;
-            stdout.push_str(&it.line);
-            stdout.push('\n');
-            items.push(it);
+        });
+        for items in rx {
+            for it in items {
+                let line = writer.take(it).map(batch_line)?;
+                bar.suspend(|| emit(&line));
+            }
+            writer.publish(false)?;
         }
-        flush(&opts.out, &items)?;
+        Ok(())
+    })?;
+    bar.finish_and_clear();
+    let (exit, mut timing) = writer.finish()?;
+    timing.read_s = counters.read_ns.load(Ordering::Relaxed) as f64 * 1e-9;
+    let secs = |c: &AtomicU64| c.load(Ordering::Relaxed) as f64 * 1e-9;
+    timing.decode_s = secs(&counters.decode_ns);
+    timing.measure_s = secs(&counters.measure_ns);
+    timing.record_s = secs(&counters.record_ns);
+    timing.wall_s = start.elapsed().as_secs_f64();
+    Ok((
+        Outcome {
+            stdout: String::new(),
+            stderr: String::new(),
+            exit,
+        },
+        timing,
+    ))
+}
+
+/// Size and modification time of a file, for the landing test.
+type Signature = (u64, Option<SystemTime>);
+
+/// The `.wav` files in `dir` with their signatures, sorted by name.
+fn wav_listing(dir: &Path) -> Result<Vec<(PathBuf, Signature)>> {
+    let rd = std::fs::read_dir(dir).map_err(|e| TonusError::Io {
+        path: dir.to_path_buf(),
+        reason: format!("cannot list the watched folder: {e}"),
+    })?;
+    let mut v: Vec<(PathBuf, Signature)> = rd
+        .filter_map(|e| e.ok())
+        .filter(|e| is_wav_name(&e.path()))
+        .filter_map(|e| {
+            let md = e.metadata().ok()?;
+            md.is_file()
+                .then(|| (e.path(), (md.len(), md.modified().ok())))
+        })
+        .collect();
+    v.sort();
+    Ok(v)
+}
+
+/// Station mode: decides each recording that lands in `w.dir` (see the
+/// module notes), printing [`station_line`] through `emit` and status notes
+/// through `note`, until `w.limit` recordings or `w.timeout` (forever if
+/// neither). Appends to the history; the CSV and JSON Lines files are
+/// published after every recording; the batch report of what was decided
+/// is written when the watch ends. Exit 0 if every recording passed (or
+/// none landed), 1 otherwise.
+///
+/// # Errors
+/// A folder that does not exist or cannot be listed; an unusable output
+/// folder or history.
+pub fn watch(
+    spec: &Spec,
+    opts: &InspectOptions,
+    w: &WatchOptions,
+    emit: &mut dyn FnMut(&str),
+    note: &mut dyn FnMut(&str),
+) -> Result<Outcome> {
+    if !w.dir.is_dir() {
+        return Err(TonusError::Io {
+            path: w.dir.clone(),
+            reason: "--watch needs an existing folder".into(),
+        });
     }
+    let start = Instant::now();
+    let mut writer = Writer::open(spec, opts)?;
+    let mut done: HashSet<PathBuf> = wav_listing(&w.dir)?.into_iter().map(|(p, _)| p).collect();
+    let mut seen: HashMap<PathBuf, Signature> = HashMap::new();
+    let counters = Counters::default();
+    note(&format!(
+        "watching {} every {} ms for {} ({} recording(s) already there are left alone){}",
+        w.dir.display(),
+        w.interval.as_millis(),
+        spec.spec_label(),
+        done.len(),
+        match (w.limit, w.timeout) {
+            (Some(n), Some(t)) =>
+                format!("; stops after {n} recording(s) or {} s", t.as_secs_f64()),
+            (Some(n), None) => format!("; stops after {n} recording(s)"),
+            (None, Some(t)) => format!("; stops after {} s", t.as_secs_f64()),
+            (None, None) => "; stop with Ctrl-C".into(),
+        }
+    ));
+    let mut decided = 0usize;
+    let stop_reason = loop {
+        if w.limit.is_some_and(|n| decided >= n) {
+            break "limit reached";
+        }
+        let remaining = match w.timeout {
+            Some(t) => match t.checked_sub(start.elapsed()) {
+                Some(r) if !r.is_zero() => Some(r),
+                _ => break "time is up",
+            },
+            None => None,
+        };
+        std::thread::sleep(remaining.map_or(w.interval, |r| r.min(w.interval)));
+        let listing = wav_listing(&w.dir)?;
+        let present: HashSet<&PathBuf> = listing.iter().map(|(p, _)| p).collect();
+        seen.retain(|p, _| present.contains(p));
+        for (path, sig) in &listing {
+            if done.contains(path) || w.limit.is_some_and(|n| decided >= n) {
+                continue;
+            }
+            let landed = sig.0 > 0 && seen.get(path) == Some(sig);
+            if !landed {
+                seen.insert(path.clone(), *sig);
+                continue;
+            }
+            seen.remove(path);
+            done.insert(path.clone());
+            let it = decide_one(spec, path, opts, &counters);
+            let line = writer.take(it).map(station_line)?;
+            writer.publish(true)?;
+            emit(&line);
+            decided += 1;
+        }
+    };
+    let (exit, _) = writer.finish()?;
+    note(&format!(
+        "watch ended ({stop_reason}): {decided} recording(s) decided; report in {}",
+        opts.out.join(report::batch::HTML_NAME).display()
+    ));
     Ok(Outcome {
-        stdout,
+        stdout: String::new(),
         stderr: String::new(),
-        exit: if all_pass { 0 } else { 1 },
+        exit,
     })
 }

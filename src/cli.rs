@@ -151,9 +151,23 @@ pub enum Command {
         #[arg(long)]
         spec: PathBuf,
         /// Recordings and folders of recordings.
-        #[arg(required = true)]
+        #[arg(required_unless_present = "watch", conflicts_with = "watch")]
         inputs: Vec<PathBuf>,
-        /// Folder for inspect.csv and inspect.jsonl [default: inspect-out].
+        /// Station mode: decide each new .wav as it lands in this folder
+        /// (files already there are left alone).
+        #[arg(long, value_name = "DIR")]
+        watch: Option<PathBuf>,
+        /// Watch mode: time between two listings of the folder, 50ms to 10s
+        /// [default: 500ms].
+        #[arg(long, value_name = "DURATION", requires = "watch")]
+        watch_interval: Option<String>,
+        /// Watch mode: stop after this many recordings.
+        #[arg(long, value_name = "N", requires = "watch")]
+        watch_limit: Option<usize>,
+        /// Watch mode: stop after this long, e.g. 60s or 28800s.
+        #[arg(long, value_name = "DURATION", requires = "watch")]
+        watch_timeout: Option<String>,
+        /// Folder for inspect.csv, inspect.jsonl and the batch report [default: inspect-out].
         #[arg(long, default_value = "inspect-out")]
         out: PathBuf,
         /// History database [default: tonus-history.sqlite].
@@ -491,6 +505,54 @@ pub fn synth_config(
 }
 
 /// Parses the synth sample format flag into (bits, float).
+/// The watch mode's options from its flags; the interval defaults to
+/// [`crate::batch::WATCH_INTERVAL_DEFAULT_S`] and must lie between
+/// [`crate::batch::WATCH_INTERVAL_MIN_S`] and
+/// [`crate::batch::WATCH_INTERVAL_MAX_S`].
+///
+/// # Errors
+/// A duration without its unit, an interval out of range, a limit of 0.
+pub fn watch_options(
+    dir: PathBuf,
+    interval: Option<&str>,
+    limit: Option<usize>,
+    timeout: Option<&str>,
+) -> Result<crate::batch::WatchOptions> {
+    use crate::batch::{WATCH_INTERVAL_DEFAULT_S, WATCH_INTERVAL_MAX_S, WATCH_INTERVAL_MIN_S};
+    let interval_s = match interval {
+        Some(t) => units::parse_duration_s("--watch-interval", t)?,
+        None => WATCH_INTERVAL_DEFAULT_S,
+    };
+    if !(WATCH_INTERVAL_MIN_S..=WATCH_INTERVAL_MAX_S).contains(&interval_s) {
+        return Err(TonusError::OutOfRange {
+            key: "--watch-interval".into(),
+            value: interval.unwrap_or_default().into(),
+            why: format!(
+                "poll between {} ms and {} s",
+                WATCH_INTERVAL_MIN_S * 1e3,
+                WATCH_INTERVAL_MAX_S
+            ),
+        });
+    }
+    if limit == Some(0) {
+        return Err(TonusError::OutOfRange {
+            key: "--watch-limit".into(),
+            value: "0".into(),
+            why: "give at least 1 recording, or leave the flag out to watch until stopped".into(),
+        });
+    }
+    let timeout = timeout
+        .map(|t| units::parse_duration_s("--watch-timeout", t))
+        .transpose()?
+        .map(std::time::Duration::from_secs_f64);
+    Ok(crate::batch::WatchOptions {
+        dir,
+        interval: std::time::Duration::from_secs_f64(interval_s),
+        limit,
+        timeout,
+    })
+}
+
 pub fn sample_format(text: &str) -> Result<(u16, bool)> {
     match text {
         "16" => Ok((16, false)),

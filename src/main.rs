@@ -105,6 +105,10 @@ fn run(cli: Cli) -> Result<Outcome> {
         Command::Inspect {
             spec,
             inputs,
+            watch,
+            watch_interval,
+            watch_limit,
+            watch_timeout,
             out,
             history,
             no_history,
@@ -112,17 +116,33 @@ fn run(cli: Cli) -> Result<Outcome> {
             operator,
         } => {
             let spec = tonus::spec::Spec::from_file(&spec)?;
-            let files = tonus::batch::expand_inputs(&inputs)?;
-            tonus::batch::inspect(
-                &spec,
-                &files,
-                &tonus::batch::InspectOptions {
-                    out,
-                    history: (!no_history).then_some(history),
-                    station,
-                    operator,
-                },
-            )
+            let opts = tonus::batch::InspectOptions {
+                out,
+                history: (!no_history).then_some(history),
+                station,
+                operator,
+                progress: true,
+            };
+            match watch {
+                Some(dir) => tonus::batch::watch(
+                    &spec,
+                    &opts,
+                    &cli::watch_options(
+                        dir,
+                        watch_interval.as_deref(),
+                        watch_limit,
+                        watch_timeout.as_deref(),
+                    )?,
+                    &mut print_line,
+                    &mut |l| eprintln!("{l}"),
+                ),
+                None => tonus::batch::inspect(
+                    &spec,
+                    &tonus::batch::expand_inputs(&inputs)?,
+                    &opts,
+                    &mut print_line,
+                ),
+            }
         }
         Command::History {
             db,
@@ -145,6 +165,15 @@ fn run(cli: Cli) -> Result<Outcome> {
             commands::history(&db, &filter, csv.as_deref())
         }
     }
+}
+
+/// Prints one line on standard output as soon as it is ready (a line
+/// station reads them one by one); a closed pipe is not an error here.
+fn print_line(line: &str) {
+    use std::io::Write as _;
+    let mut out = std::io::stdout().lock();
+    let _ = writeln!(out, "{line}");
+    let _ = out.flush();
 }
 
 fn main() -> ExitCode {

@@ -1,8 +1,11 @@
-//! Reports: the only module that writes CSV, JSON, Markdown and PNG.
+//! Reports: the only module that writes CSV, JSON, Markdown, HTML and PNG
+//! (`batch` holds the batch report of `inspect` and its growing CSV / JSON
+//! Lines outputs).
 //!
 //! Every file is written to a temporary sibling (`NAME.part`) and renamed
 //! into place, so an interrupted run never leaves a half-written output.
 
+pub mod batch;
 pub mod png;
 
 use std::path::{Path, PathBuf};
