@@ -143,6 +143,9 @@ pub enum Command {
         /// Bending stiffness D in N·m (rectangle, simply supported plate), e.g. 0.02.
         #[arg(long)]
         bending_stiffness: Option<f64>,
+        /// Uneven tension on a circle: Txx = T(1+ε), Tyy = T(1−ε), ε as a fraction or percent, e.g. 0.02 or 2% (splits each (1,n) pair; tap off the axes, e.g. --tap-at 0.6,30, to hear both members).
+        #[arg(long)]
+        tension_skew: Option<String>,
     },
     /// Decide recordings against a specification (pass / fail /
     /// indeterminate / not measured), in parallel, with a history record.
@@ -402,6 +405,7 @@ pub fn synth_config(
     air: bool,
     tension_y: Option<&str>,
     bending_stiffness: Option<f64>,
+    tension_skew: Option<&str>,
 ) -> Result<SynthConfig> {
     let p = panel.to_panel()?;
     let density = p.areal_density.ok_or_else(|| {
@@ -484,10 +488,40 @@ pub fn synth_config(
         }
     }
     cfg.bending_stiffness = bending_stiffness;
+    cfg.tension_skew = tension_skew.map(parse_skew).transpose()?;
+    if cfg.tension_skew.is_some() && !matches!(p.shape, crate::membrane::Shape::Circle { .. }) {
+        return Err(TonusError::Panel(
+            "--tension-skew is for a circle; for a rectangle give --tension-y".into(),
+        ));
+    }
     cfg.tension_y = tension_y
         .map(|t| units::parse_tension("--tension-y", t))
         .transpose()?;
     Ok(cfg)
+}
+
+/// Parses `--tension-skew`: a fraction (0.02) or a percentage (2%),
+/// |ε| < 0.5.
+fn parse_skew(text: &str) -> Result<f64> {
+    let t = text.trim();
+    let (num, scale) = match t.strip_suffix('%') {
+        Some(n) => (n.trim(), 0.01),
+        None => (t, 1.0),
+    };
+    let v = num.parse::<f64>().map_err(|_| TonusError::BadQuantity {
+        key: "--tension-skew".into(),
+        value: text.into(),
+        expected: "a fraction or a percentage".into(),
+        example: "0.02 or 2%".into(),
+    })? * scale;
+    if !(v.is_finite() && v.abs() < 0.5) {
+        return Err(TonusError::OutOfRange {
+            key: "--tension-skew".into(),
+            value: text.into(),
+            why: "ε must lie between −0.5 and 0.5 (−50 % to 50 %)".into(),
+        });
+    }
+    Ok(v)
 }
 
 /// Parses the synth sample format flag into (bits, float).

@@ -17,6 +17,7 @@ pub mod crlb;
 pub mod decision;
 pub mod error;
 pub mod estimator;
+pub mod evenness;
 pub mod fit;
 pub mod history;
 pub mod matching;

@@ -77,6 +77,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             air,
             tension_y,
             bending_stiffness,
+            tension_skew,
         } => {
             let cfg = cli::synth_config(
                 &panel,
@@ -97,6 +98,7 @@ fn run(cli: Cli) -> Result<Outcome> {
                 air,
                 tension_y.as_deref(),
                 bending_stiffness,
+                tension_skew.as_deref(),
             )?;
             let (b, float) = cli::sample_format(&bits)?;
             commands::synth(&cfg, &output, b, float)
