@@ -89,6 +89,7 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions) -> Item {
         let fit_opts = pipeline::FitOptions {
             model: spec.model.fit_model(),
             analysis: Default::default(),
+            calibration: None,
         };
         let m = pipeline::measure(&rec, &panel, &fit_opts)?;
         let verdict = spec.decide(&m);

@@ -71,6 +71,10 @@ pub struct BudgetInputs<'a> {
     pub modes: &'a [(u32, u32)],
     /// Standard uncertainty of T from the fit itself, N/m.
     pub u_fit: f64,
+    /// The calibration's parts, when `frequencies_hz` are already divided
+    /// by its factors ([`crate::calibration`]). σ and the dimensions then
+    /// cancel: T = T_ref·(f/f_ref)² mode by mode.
+    pub calibration: Option<crate::calibration::CalibrationTerm>,
 }
 
 /// T = σ·c² refitted for a geometry and σ, the partials held fixed.
@@ -119,10 +123,35 @@ pub fn budget(inp: &BudgetInputs) -> Budget {
         |s| tension_for(&inp.shape, s, inp.air_loaded, f, md),
         inp.sigma,
     );
+    if let Some(cal) = inp.calibration {
+        rows.push(BudgetRow {
+            source: "calibration: reference tension (Type B, common to all modes)".into(),
+            estimate: "factors r(m,n)".into(),
+            standard_uncertainty: format!("{:.4} % of T_ref", 100.0 * cal.u_rel_reference),
+            sensitivity: "T/T_ref".into(),
+            contribution_n_per_m: t0 * cal.u_rel_reference,
+        });
+        rows.push(BudgetRow {
+            source: format!(
+                "calibration: per-mode factors, {} modes (Type A/B)",
+                cal.modes
+            ),
+            estimate: "factors r(m,n)".into(),
+            standard_uncertainty: format!("{:.4} % of T", 100.0 * cal.u_rel_factors),
+            sensitivity: "1".into(),
+            contribution_n_per_m: t0 * cal.u_rel_factors,
+        });
+    }
+    // With a calibration made with the same σ and geometry, both cancel.
+    let (c_sigma, note_cal) = if inp.calibration.is_some() {
+        (0.0, ", cancels against the calibration")
+    } else {
+        (c_sigma, "")
+    };
     let u_sigma = inp.u_sigma.unwrap_or(0.0);
     rows.push(BudgetRow {
         source: format!(
-            "areal density σ (Type B{})",
+            "areal density σ (Type B{}{note_cal})",
             if inp.u_sigma.is_none() {
                 ", no uncertainty given"
             } else {
@@ -135,12 +164,15 @@ pub fn budget(inp: &BudgetInputs) -> Budget {
         contribution_n_per_m: (c_sigma * u_sigma).abs(),
     });
     let u_l = inp.u_size.unwrap_or(0.0);
-    let note = if inp.u_size.is_none() {
-        ", no uncertainty given"
-    } else {
-        ""
+    let note = match (inp.u_size.is_none(), inp.calibration.is_some()) {
+        (true, false) => ", no uncertainty given",
+        (true, true) => ", no uncertainty given, cancels against the calibration",
+        (false, true) => ", cancels against the calibration",
+        (false, false) => "",
     };
+    let cal_scale = if inp.calibration.is_some() { 0.0 } else { 1.0 };
     let mut dim_row = |name: &str, value: f64, c: f64| {
+        let c = c * cal_scale;
         rows.push(BudgetRow {
             source: format!("{name} (Type B{note})"),
             estimate: format!("{:.2} mm", value * 1e3),
@@ -247,6 +279,7 @@ mod tests {
             frequencies_hz: &freqs,
             modes: &modes,
             u_fit: 0.0,
+            calibration: None,
         });
         let t = 0.26 * c * c;
         assert!((b.tension_n_per_m / t - 1.0).abs() < 1e-12);

@@ -61,6 +61,31 @@ pub enum Command {
         /// With --out, skip the PNG.
         #[arg(long)]
         no_picture: bool,
+        /// Calibration file from `tonus calibrate`: fit against the calibrated mode lines (isotropic model only).
+        #[arg(long)]
+        calibration: Option<PathBuf>,
+    },
+    /// Per-mode correction factors from reference recordings at a known tension.
+    Calibrate {
+        /// Reference recordings (WAV) of one membrane at the known tension.
+        #[arg(required = true)]
+        recordings: Vec<PathBuf>,
+        #[command(flatten)]
+        panel: PanelArgs,
+        #[command(flatten)]
+        input: InputArgs,
+        /// The known tension, e.g. 3000N/m or 30N/cm.
+        #[arg(long)]
+        tension: String,
+        /// Its standard uncertainty (k = 1), e.g. 30N/m.
+        #[arg(long)]
+        tension_u: String,
+        /// Model used to label the references: isotropic (default) or air (light film in air).
+        #[arg(long)]
+        model: Option<String>,
+        /// Calibration file to write (TOML).
+        #[arg(long)]
+        out: PathBuf,
     },
     /// Predicted mode table for a tension, or the tension for a fundamental.
     Modes {
@@ -376,6 +401,40 @@ pub fn fit_options(
     Ok(FitOptions {
         model,
         analysis: input.analysis()?,
+        calibration: None,
+    })
+}
+
+/// Validated options of `calibrate`: the labelling model (isotropic or
+/// air), the known tension and its standard uncertainty in N/m.
+///
+/// # Errors
+/// Another model, malformed or impossible tensions.
+pub fn calibrate_options(
+    model: Option<&str>,
+    tension: &str,
+    tension_u: &str,
+    input: &InputArgs,
+) -> Result<(FitOptions, f64, f64)> {
+    let opts = fit_options(false, model, input)?;
+    if !matches!(opts.model, FitModel::Isotropic | FitModel::AirLoaded) {
+        return Err(TonusError::Panel(
+            "calibrate labels the references with --model isotropic or air; the factors are always against the ideal membrane".into(),
+        ));
+    }
+    let t = units::parse_tension("--tension", tension)?.0;
+    let u = units::parse_tension("--tension-u", tension_u)?.0;
+    Ok((opts, t, u))
+}
+
+/// Reads a calibration file for `fit --calibration`.
+///
+/// # Errors
+/// Unreadable or invalid file.
+pub fn load_calibration(path: &std::path::Path) -> Result<crate::calibration::Loaded> {
+    Ok(crate::calibration::Loaded {
+        path: path.to_path_buf(),
+        calibration: crate::calibration::Calibration::from_file(path)?,
     })
 }
 

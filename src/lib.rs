@@ -11,6 +11,7 @@ pub mod batch;
 pub mod bessel;
 pub mod biaxial;
 pub mod budget;
+pub mod calibration;
 pub mod cli;
 pub mod commands;
 pub mod crlb;

@@ -26,6 +26,8 @@ pub struct FitOptions {
     pub model: FitModel,
     /// Partial finder settings.
     pub analysis: AnalysisConfig,
+    /// Per-mode correction factors to fit against ([`crate::calibration`]).
+    pub calibration: Option<std::sync::Arc<crate::calibration::Loaded>>,
 }
 
 impl Default for FitOptions {
@@ -33,6 +35,7 @@ impl Default for FitOptions {
         FitOptions {
             model: FitModel::Isotropic,
             analysis: AnalysisConfig::default(),
+            calibration: None,
         }
     }
 }
@@ -62,6 +65,8 @@ pub struct ModeRow {
     pub outlier: bool,
     /// Left out of the fit because a neighbouring line shares its peak.
     pub crowded: bool,
+    /// Left out of the fit because the calibration has no factor for it.
+    pub uncalibrated: bool,
     /// Other labels that fit this partial about as well.
     pub alternatives: Vec<String>,
 }
@@ -115,6 +120,8 @@ pub struct Measurement {
     /// Every tap of a recording with several, combined (set by
     /// [`crate::taps::measure_taps`] callers).
     pub taps: Option<crate::taps::TapSeries>,
+    /// The calibration applied, if any.
+    pub calibration: Option<crate::calibration::Applied>,
 }
 
 /// Predicted lines for a panel up to at least `g_max`, from a small
@@ -288,6 +295,14 @@ pub fn measure_with(
             "--free-aspect needs a rectangle; a circle has no aspect ratio".into(),
         ));
     }
+    if let Some(cal) = &opts.calibration {
+        if opts.model != FitModel::Isotropic {
+            return Err(TonusError::Panel(
+                "--calibration corrects the ideal isotropic membrane; leave out --model (the factors already hold air loading and supports)".into(),
+            ));
+        }
+        cal.calibration.check_panel(panel, &cal.path)?;
+    }
     let analysis = partials::analyse_with(rec, &opts.analysis, planner)?;
     let mut warnings = analysis.warnings.clone();
     let parts = &analysis.partials;
@@ -311,6 +326,10 @@ pub fn measure_with(
     let lines = match (opts.model, panel.areal_density) {
         (FitModel::AirLoaded, Some(s)) => crate::airload::loaded_lines(&lines, s.0),
         _ => lines,
+    };
+    let (lines, uncalibrated) = match &opts.calibration {
+        Some(cal) => cal.calibration.apply(&lines),
+        None => (lines, Vec::new()),
     };
     let matching = matching::match_modes(
         parts,
@@ -365,11 +384,15 @@ pub fn measure_with(
                 near || !a.alternatives.is_empty()
             })
             .collect();
-        let isolated: Vec<usize> = (0..obs.len()).filter(|&i| !crowded[i]).collect();
+        // Modes the calibration has no factor for are never fitted.
+        let uncal: Vec<bool> = obs.iter().map(|o| uncalibrated.contains(&o.mode)).collect();
+        let isolated: Vec<usize> = (0..obs.len())
+            .filter(|&i| !crowded[i] && !uncal[i])
+            .collect();
         let fit_idx: Vec<usize> = if isolated.len() >= MIN_ISOLATED_MODES {
             isolated
         } else {
-            (0..obs.len()).collect()
+            (0..obs.len()).filter(|&i| !uncal[i]).collect()
         };
         let fit_obs: Vec<Observation> = fit_idx.iter().map(|&i| obs[i].clone()).collect();
         fit_result = match (opts.model, panel.shape) {
@@ -476,7 +499,9 @@ pub fn measure_with(
                     snr_db: p.snr_db,
                     t60_s: p.t60_s,
                     outlier: f.outliers.contains(&i),
-                    crowded: f.left_out_crowded.contains(&i),
+                    crowded: f.left_out_crowded.contains(&i)
+                        && !uncalibrated.contains(&line.labels[0]),
+                    uncalibrated: uncalibrated.contains(&line.labels[0]),
                     alternatives: a
                         .alternatives
                         .iter()
@@ -506,6 +531,16 @@ pub fn measure_with(
                     });
                 }
             }
+        }
+        let not_calibrated: Vec<String> = modes
+            .iter()
+            .filter(|r| r.uncalibrated)
+            .map(|r| r.labels.clone())
+            .collect();
+        if !not_calibrated.is_empty() {
+            warnings.push(Warning::NotCalibrated {
+                labels: not_calibrated,
+            });
         }
         unmatched = m.unmatched.clone();
         if let Some((c_rival, _, n_rival)) = m.rival {
@@ -539,15 +574,32 @@ pub fn measure_with(
         }
         None => (None, None),
     };
+    let mut calibration_term = None;
     let budget = match (&fit_result, tension, panel.areal_density) {
         (Some(f), Some(t), Some(s))
             if matches!(f.model, FitModel::Isotropic | FitModel::AirLoaded) =>
         {
             let used: Vec<usize> = (0..modes.len())
-                .filter(|&i| !modes[i].outlier && !modes[i].crowded)
+                .filter(|&i| !modes[i].outlier && !modes[i].crowded && !modes[i].uncalibrated)
                 .collect();
-            let freqs: Vec<f64> = used.iter().map(|&i| modes[i].measured_hz).collect();
             let labels: Vec<(u32, u32)> = used.iter().map(|&i| (modes[i].m, modes[i].n)).collect();
+            // With a calibration the budget sees f/r against the ideal lines.
+            let freqs: Vec<f64> = used
+                .iter()
+                .map(|&i| {
+                    let r = opts
+                        .calibration
+                        .as_ref()
+                        .and_then(|c| c.calibration.factor(modes[i].m, modes[i].n))
+                        .map(|f| f.factor)
+                        .unwrap_or(1.0);
+                    modes[i].measured_hz / r
+                })
+                .collect();
+            calibration_term = opts
+                .calibration
+                .as_ref()
+                .map(|c| c.calibration.term(&labels));
             Some(crate::budget::budget(&crate::budget::BudgetInputs {
                 shape: panel.shape,
                 sigma: s.0,
@@ -557,6 +609,7 @@ pub fn measure_with(
                 frequencies_hz: &freqs,
                 modes: &labels,
                 u_fit: t.standard_uncertainty,
+                calibration: calibration_term,
             }))
         }
         _ => None,
@@ -578,6 +631,11 @@ pub fn measure_with(
         &warnings,
         rec.clipped_fraction,
     );
+    let not_calibrated_rows: Vec<String> = modes
+        .iter()
+        .filter(|r| r.uncalibrated)
+        .map(|r| r.labels.clone())
+        .collect();
     Ok(Measurement {
         panel: panel.clone(),
         analysis,
@@ -596,5 +654,16 @@ pub fn measure_with(
         plate,
         taps: None,
         duration_s: rec.duration_s(),
+        calibration: opts
+            .calibration
+            .as_ref()
+            .map(|c| crate::calibration::Applied {
+                file: c.path.display().to_string(),
+                created: c.calibration.created.clone(),
+                reference_tension_n_per_m: c.calibration.reference_tension_n_per_m,
+                reference_tension_u_n_per_m: c.calibration.reference_tension_u_n_per_m,
+                term: calibration_term,
+                not_calibrated: not_calibrated_rows,
+            }),
     })
 }

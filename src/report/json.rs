@@ -21,6 +21,7 @@
 //! - `biaxial` (model biaxial): {`tension_x`, `tension_y` (N/m, {value, standard_uncertainty}), `tx_over_sigma`, `ty_over_sigma` (m²/s²), `ratio`, `anisotropy_percent`, `correlation`, `swapped` [Tx, Ty] of the relabelled solution} or null
 //! - `plate` (model stiff): {`t_over_sigma` (m²/s²), `d_over_sigma` (m⁴/s²), `tension` (N/m), `bending_stiffness` (N·m), `correlation`, …} or null
 //! - `taps` (several taps in the file): {`taps`: [{`onset_s`, `value`, `grade`, `modes`, `kept`, `reason`}], `combined` {value, standard_uncertainty}, `repeatability`, `unit`} or null
+//! - `calibration` (with `--calibration`): {`file`, `created`, `reference_tension_n_per_m`, `reference_tension_u_n_per_m`, `term` {`u_rel_reference`, `u_rel_factors`, `modes`}, `not_calibrated` [labels]} or null; modes carry `uncalibrated`
 //! - `warnings`: [{`kind`, `message`, …}]
 //! - `caution`: the safety note.
 
@@ -168,6 +169,7 @@ pub fn fit_record(file: &Path, m: &Measurement, unit: TensionUnit) -> Value {
         "taps": serde_json::to_value(&m.taps).unwrap_or(Value::Null),
         "biaxial": serde_json::to_value(&m.biaxial).unwrap_or(Value::Null),
         "plate": serde_json::to_value(&m.plate).unwrap_or(Value::Null),
+        "calibration": serde_json::to_value(&m.calibration).unwrap_or(Value::Null),
         "warnings": warnings_json(&m.warnings),
         "caution": CAUTION,
     })

@@ -124,6 +124,16 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                     b.correlation
                 );
             }
+            if let Some(c) = &m.calibration {
+                let _ = writeln!(
+                    s,
+                    "  calibrated   {} (reference {} ± {} N/m, made {})",
+                    c.file,
+                    crate::units::sig(c.reference_tension_n_per_m, 5),
+                    crate::units::sig(c.reference_tension_u_n_per_m, 3),
+                    c.created
+                );
+            }
             let _ = writeln!(
                 s,
                 "T/σ          {}",
@@ -181,6 +191,8 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                 opt(r.t60_s, 3),
                 if r.outlier {
                     "  outlier, not fitted"
+                } else if r.uncalibrated {
+                    "  not in the calibration, not fitted"
                 } else if r.crowded {
                     "  crowded, not fitted"
                 } else {
