@@ -21,6 +21,7 @@ pub mod estimator;
 pub mod evenness;
 pub mod fit;
 pub mod history;
+pub mod identifiability;
 pub mod matching;
 pub mod membrane;
 pub mod panel;

@@ -122,6 +122,8 @@ pub struct Measurement {
     pub taps: Option<crate::taps::TapSeries>,
     /// The calibration applied, if any.
     pub calibration: Option<crate::calibration::Applied>,
+    /// Rank, condition and correlations of the fit's Jacobian.
+    pub identifiability: Option<crate::identifiability::Identifiability>,
 }
 
 /// Predicted lines for a panel up to at least `g_max`, from a small
@@ -350,6 +352,7 @@ pub fn measure_with(
         (_, other, _) => (lines, other),
     };
     let mut fit_result = None;
+    let mut identifiability = None;
     let mut biaxial: Option<crate::biaxial::Biaxial> = None;
     let mut plate: Option<crate::plate::PlateFit> = None;
     let mut modes = Vec::new();
@@ -437,6 +440,21 @@ pub fn measure_with(
             }
             _ => fit::fit_isotropic(&fit_obs),
         };
+        // What the kept modes can determine; refuse what they cannot.
+        if let Some(f) = &fit_result {
+            let kept: Vec<Observation> = (0..fit_obs.len())
+                .filter(|i| !f.outliers.contains(i))
+                .map(|i| fit_obs[i].clone())
+                .collect();
+            let id = crate::identifiability::for_fit(opts.model, &kept, f);
+            if let Some(why) = id.refusal() {
+                return Err(TonusError::NotIdentifiable(format!(
+                    "{}: {why}",
+                    rec.path.display()
+                )));
+            }
+            identifiability = Some(id);
+        }
         // Residuals for every assignment, outliers in its numbering.
         if let Some(f) = fit_result.as_mut() {
             if opts.model == FitModel::AirLoaded {
@@ -654,6 +672,7 @@ pub fn measure_with(
         plate,
         taps: None,
         duration_s: rec.duration_s(),
+        identifiability,
         calibration: opts
             .calibration
             .as_ref()

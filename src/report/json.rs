@@ -22,6 +22,7 @@
 //! - `plate` (model stiff): {`t_over_sigma` (m²/s²), `d_over_sigma` (m⁴/s²), `tension` (N/m), `bending_stiffness` (N·m), `correlation`, …} or null
 //! - `taps` (several taps in the file): {`taps`: [{`onset_s`, `value`, `grade`, `modes`, `kept`, `reason`}], `combined` {value, standard_uncertainty}, `repeatability`, `unit`} or null
 //! - `calibration` (with `--calibration`): {`file`, `created`, `reference_tension_n_per_m`, `reference_tension_u_n_per_m`, `term` {`u_rel_reference`, `u_rel_factors`, `modes`}, `not_calibrated` [labels]} or null; modes carry `uncalibrated`
+//! - `identifiability`: {`parameters` [names, log parameters], `modes`, `rank`, `condition_number` (null if infinite), `singular_values`, `correlation` (matrix), `max_condition`, `identifiable`} or null without a fit
 //! - `warnings`: [{`kind`, `message`, …}]
 //! - `caution`: the safety note.
 
@@ -170,6 +171,7 @@ pub fn fit_record(file: &Path, m: &Measurement, unit: TensionUnit) -> Value {
         "biaxial": serde_json::to_value(&m.biaxial).unwrap_or(Value::Null),
         "plate": serde_json::to_value(&m.plate).unwrap_or(Value::Null),
         "calibration": serde_json::to_value(&m.calibration).unwrap_or(Value::Null),
+        "identifiability": serde_json::to_value(&m.identifiability).unwrap_or(Value::Null),
         "warnings": warnings_json(&m.warnings),
         "caution": CAUTION,
     })

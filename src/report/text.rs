@@ -156,6 +156,30 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                 "fit          {} modes, rms residual {:.2} cents, {}",
                 f.n_used, f.rms_residual_cents, f.uncertainty_method
             );
+            if let Some(id) = &m.identifiability {
+                let mut corr = Vec::new();
+                for a in 0..id.parameters.len() {
+                    for b in a + 1..id.parameters.len() {
+                        corr.push(format!(
+                            "fit correlation r({}, {}) = {:.3}",
+                            id.parameters[a], id.parameters[b], id.correlation[a][b]
+                        ));
+                    }
+                }
+                let _ = writeln!(
+                    s,
+                    "identifiable rank {} of {}, condition number {} (limit {:.0e}){}",
+                    id.rank,
+                    id.parameters.len(),
+                    sig(id.condition_number, 3),
+                    id.max_condition,
+                    if corr.is_empty() {
+                        String::new()
+                    } else {
+                        format!(", {}", corr.join(", "))
+                    }
+                );
+            }
         }
         _ => {
             let _ = writeln!(s, "tension      – (no fit)");
