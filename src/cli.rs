@@ -271,6 +271,15 @@ pub struct PanelArgs {
     /// Standard uncertainty of each dimension, e.g. 0.5mm.
     #[arg(long)]
     pub size_u: Option<String>,
+    /// Standard uncertainty of the thickness, e.g. 0.005mm (Young's modulus).
+    #[arg(long)]
+    pub thickness_u: Option<String>,
+    /// Poisson's ratio ν, e.g. 0.38 (with --thickness: Young's modulus from D, --model stiff).
+    #[arg(long)]
+    pub poisson_ratio: Option<String>,
+    /// Standard uncertainty of Poisson's ratio, e.g. 0.02.
+    #[arg(long)]
+    pub poisson_ratio_u: Option<String>,
 }
 
 /// Recording input flags.
@@ -315,6 +324,9 @@ impl PanelArgs {
             areal_density_u: self.areal_density_u.clone(),
             size_u: self.size_u.clone(),
             model: None,
+            thickness_u: self.thickness_u.clone(),
+            poisson_ratio: self.poisson_ratio.clone(),
+            poisson_ratio_u: self.poisson_ratio_u.clone(),
         };
         let base = match &self.panel {
             Some(p) => PanelSpec::from_file(p)?,

@@ -413,6 +413,23 @@ pub fn measure_with(
                     })
                     .collect();
                 plate = crate::plate::fit(&pairs, panel.areal_density.map(|s| s.0));
+                // Young's modulus where thickness and ν are given; D's
+                // uncertainty includes σ's (D = σ·(D/σ)).
+                if let (Some(pf), Some(mat), Some(s)) =
+                    (plate.as_mut(), panel.plate_material, panel.areal_density)
+                {
+                    let q = pf.d_over_sigma;
+                    let u_rel_sigma = panel.areal_density_u.map(|u| u.0 / s.0).unwrap_or(0.0);
+                    let d = Estimate {
+                        value: s.0 * q.value,
+                        standard_uncertainty: (s.0 * q.value).abs()
+                            * ((q.standard_uncertainty / q.value).powi(2) + u_rel_sigma.powi(2))
+                                .sqrt(),
+                    };
+                    if d.value > 0.0 {
+                        pf.youngs_modulus = Some(crate::plate::youngs_modulus(d, &mat));
+                    }
+                }
                 match &plate {
                     Some(pf) => fit::fit_isotropic(&fit_obs).map(|mut f| {
                         f.model = FitModel::Stiff;

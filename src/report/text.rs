@@ -101,6 +101,13 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                         p.correlation
                     );
                 }
+                if let Some(e) = p.youngs_modulus {
+                    let _ = writeln!(
+                        s,
+                        "  Young's modulus E = {}  (E = 12·D·(1 − ν²)/h³)",
+                        pm(e.value / 1e9, e.standard_uncertainty / 1e9, "GPa")
+                    );
+                }
             }
             if let Some(b) = &m.biaxial {
                 let k = unit.newtons_per_meter();
