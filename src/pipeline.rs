@@ -260,6 +260,46 @@ fn plate_predictor(obs: &[Observation], lx: f64, ly: f64) -> Option<Predictor> {
     }))
 }
 
+/// The axis evidence for a biaxial labelling ([`crate::biaxial::axis_log10_lr`]):
+/// swapped when the levels favour the swap decisively, not determined when
+/// they cannot tell or the tap point is unknown.
+fn axis_tie_break(levels: &[((u32, u32), f64)], panel: &Panel) -> crate::biaxial::AxisEvidence {
+    use crate::biaxial::{AxisEvidence, AxisVerdict, DECISIVE_LOG10_LR};
+    let Some(tap) = panel.tap else {
+        return AxisEvidence {
+            verdict: AxisVerdict::NotDetermined,
+            log10_likelihood_ratio: 0.0,
+            swapped_from_matcher: false,
+            modes_used: levels.len(),
+            detail: "axis not determined: the tap point is not given (--tap-at); the swapped solution is reported beside".into(),
+        };
+    };
+    let lr = crate::biaxial::axis_log10_lr(levels, &panel.shape, tap, panel.pickup);
+    let swap = lr < -DECISIVE_LOG10_LR;
+    let lr_reported = if swap { -lr } else { lr };
+    if lr_reported > DECISIVE_LOG10_LR {
+        AxisEvidence {
+            verdict: AxisVerdict::Determined,
+            log10_likelihood_ratio: lr_reported,
+            swapped_from_matcher: swap,
+            modes_used: levels.len(),
+            detail: format!(
+                "axis determined by the partial levels at the tap and pickup points: likelihood ratio 10^{lr_reported:.1} : 1 against the swapped labelling"
+            ),
+        }
+    } else {
+        AxisEvidence {
+            verdict: AxisVerdict::NotDetermined,
+            log10_likelihood_ratio: lr,
+            swapped_from_matcher: false,
+            modes_used: levels.len(),
+            detail: format!(
+                "axis not determined: the partial levels favour neither labelling (likelihood ratio 10^{lr:.1} : 1); tap off the diagonal or give a known axis, the swapped solution is reported beside"
+            ),
+        }
+    }
+}
+
 /// Analyses a recording and fits the panel's model to it.
 ///
 /// # Errors
@@ -340,7 +380,7 @@ pub fn measure_with(
     );
     // Biaxial tension moves the pure-m and pure-n modes apart by more than
     // the matching gate: relabel against the biaxial model itself.
-    let (lines, matching) = match (opts.model, matching, panel.shape) {
+    let (mut lines, matching) = match (opts.model, matching, panel.shape) {
         (FitModel::Biaxial, Some(m), _) => {
             let (l, mm) = relabel(parts, &lines, m, biaxial_predictor);
             (l, Some(mm))
@@ -359,7 +399,7 @@ pub fn measure_with(
     let mut missing = Vec::new();
     let mut unmatched: Vec<usize> = (0..parts.len()).collect();
     if let Some(m) = &matching {
-        let obs: Vec<Observation> = m
+        let mut obs: Vec<Observation> = m
             .assignments
             .iter()
             .map(|a| Observation {
@@ -477,9 +517,32 @@ pub fn measure_with(
             if opts.model == FitModel::AirLoaded {
                 f.model = FitModel::AirLoaded;
             }
-            if let (FitModel::Biaxial, Some((p, cov)), Shape::Rectangle { width, height }) =
+            if let (FitModel::Biaxial, Some((mut p, mut cov)), Shape::Rectangle { width, height }) =
                 (opts.model, f.two_term, panel.shape)
             {
+                // Axis tie-break: the swap (m,n) → (n,m) with A ↔ B fits the
+                // frequencies equally; the levels at the tap and pickup
+                // points may tell the two apart.
+                let levels: Vec<((u32, u32), f64)> = fit_idx
+                    .iter()
+                    .enumerate()
+                    .filter(|(k, _)| !f.outliers.contains(k))
+                    .map(|(_, &i)| (obs[i].mode, parts[m.assignments[i].partial].level_db))
+                    .collect();
+                let axis = axis_tie_break(&levels, panel);
+                if axis.swapped_from_matcher {
+                    p = [p[1], p[0]];
+                    cov = [cov[2], cov[1], cov[0]];
+                    f.two_term = Some((p, cov));
+                    for o in obs.iter_mut() {
+                        o.mode = (o.mode.1, o.mode.0);
+                    }
+                    for l in lines.iter_mut() {
+                        for lab in l.labels.iter_mut() {
+                            *lab = (lab.1, lab.0);
+                        }
+                    }
+                }
                 let b = crate::biaxial::from_two_term(p, cov, width.0, height.0, None);
                 f.model = FitModel::Biaxial;
                 f.effective_height_m = None;
@@ -498,13 +561,15 @@ pub fn measure_with(
                     value: c2.sqrt(),
                     standard_uncertainty: 0.5 * u_c2 / c2.sqrt(),
                 };
-                biaxial = Some(crate::biaxial::from_two_term(
+                let mut full = crate::biaxial::from_two_term(
                     p,
                     cov,
                     width.0,
                     height.0,
                     panel.areal_density.map(|s| s.0),
-                ));
+                );
+                full.axis = Some(axis);
+                biaxial = Some(full);
             }
             let fr: &FitResult = f;
             f.residuals_cents = obs
@@ -702,4 +767,35 @@ pub fn measure_with(
                 not_calibrated: not_calibrated_rows,
             }),
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Levels of a square tapped at x = Lx/2 but labelled the swapped way
+    /// ((2,1) for a partial that is really (1,2)): the tie-break swaps.
+    #[test]
+    fn tie_break_swaps_a_wrong_labelling() {
+        let spec = crate::panel::PanelSpec {
+            width: Some("400mm".into()),
+            height: Some("400mm".into()),
+            tap_at: Some("0.5,0.31".into()),
+            ..Default::default()
+        };
+        let panel = Panel::from_spec(&spec).unwrap();
+        let tap = panel.tap.unwrap();
+        let levels: Vec<((u32, u32), f64)> = [(1, 1), (1, 2), (3, 1), (3, 2), (1, 3)]
+            .iter()
+            .map(|&(m, n)| {
+                let c = panel.shape.mode_shape(m, n, tap).abs();
+                // Reported with the swapped labels.
+                ((n, m), 20.0 * c.log10() - 30.0)
+            })
+            .collect();
+        let ev = axis_tie_break(&levels, &panel);
+        assert!(ev.swapped_from_matcher);
+        assert_eq!(ev.verdict, crate::biaxial::AxisVerdict::Determined);
+        assert!(ev.log10_likelihood_ratio > crate::biaxial::DECISIVE_LOG10_LR);
+    }
 }

@@ -18,7 +18,7 @@
 //! - `fit`: {`modes_used`, `dof`, `iterations`, `stop_reason`, `uncertainty_method`}
 //! - `matching`: {`hypotheses`, `ambiguous`, `rival_wave_speed_m_per_s`}
 //! - `budget` (GUM): {`tension_n_per_m`, `rows`: [{`source`, `estimate`, `standard_uncertainty`, `sensitivity`, `contribution_n_per_m`}], `combined_standard_uncertainty_n_per_m`, `coverage_factor`, `expanded_uncertainty_n_per_m`} or null without areal density
-//! - `biaxial` (model biaxial): {`tension_x`, `tension_y` (N/m, {value, standard_uncertainty}), `tx_over_sigma`, `ty_over_sigma` (m²/s²), `ratio`, `anisotropy_percent`, `correlation`, `swapped` [Tx, Ty] of the relabelled solution} or null
+//! - `biaxial` (model biaxial): {`tension_x`, `tension_y` (N/m, {value, standard_uncertainty}), `tx_over_sigma`, `ty_over_sigma` (m²/s²), `ratio`, `anisotropy_percent`, `correlation`, `swapped` [Tx, Ty] of the relabelled solution, `axis` {`verdict` determined/not_determined, `log10_likelihood_ratio`, `swapped_from_matcher`, `modes_used`, `detail`}} or null
 //! - `plate` (model stiff): {`t_over_sigma` (m²/s²), `d_over_sigma` (m⁴/s²), `tension` (N/m), `bending_stiffness` (N·m), `correlation`, `youngs_modulus` (Pa, {value, standard_uncertainty}, with thickness and Poisson's ratio), …} or null
 //! - `taps` (several taps in the file): {`taps`: [{`onset_s`, `value`, `grade`, `modes`, `kept`, `reason`}], `combined` {value, standard_uncertainty}, `repeatability`, `unit`} or null
 //! - `calibration` (with `--calibration`): {`file`, `created`, `reference_tension_n_per_m`, `reference_tension_u_n_per_m`, `term` {`u_rel_reference`, `u_rel_factors`, `modes`}, `not_calibrated` [labels]} or null; modes carry `uncalibrated`

@@ -130,6 +130,9 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                     ),
                     b.correlation
                 );
+                if let Some(a) = &b.axis {
+                    let _ = writeln!(s, "  {}", a.detail);
+                }
             }
             if let Some(c) = &m.calibration {
                 let _ = writeln!(
