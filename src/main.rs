@@ -36,9 +36,16 @@ fn run(cli: Cli) -> Result<Outcome> {
                     .map(cli::load_calibration)
                     .transpose()?
                     .map(std::sync::Arc::new),
+                // A calibration replaces the panel file's model; only a
+                // --model flag given with it is refused.
                 ..cli::fit_options(
                     free_aspect,
-                    model.as_deref().or(panel.to_spec()?.model.as_deref()),
+                    model.as_deref().or(if calibration.is_none() {
+                        panel.to_spec()?.model
+                    } else {
+                        None
+                    }
+                    .as_deref()),
                     &input,
                 )?
             },
