@@ -81,6 +81,7 @@ fn main() {
                     pickup: None,
                     areal_density_u: None,
                     size_u: None,
+                    plate_material: None,
                 };
                 let m =
                     measure_with(&rec, &panel, &FitOptions::default(), &mut planner).expect("fit");

@@ -61,6 +61,7 @@ fn main() {
             pickup: None,
             areal_density_u: None,
             size_u: None,
+            plate_material: None,
         };
         let opts = FitOptions::default();
         let mut planner = realfft::RealFftPlanner::new();

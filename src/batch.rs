@@ -205,6 +205,7 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
         let fit_opts = pipeline::FitOptions {
             model: spec.model.fit_model(),
             analysis: Default::default(),
+            calibration: None,
         };
         let m =
             PLANNER.with(|p| pipeline::measure_with(&rec, &panel, &fit_opts, &mut p.borrow_mut()));

@@ -22,7 +22,86 @@
 //! Ty/(σLy²), so tensions and a free aspect ratio cannot be fitted together.
 
 use crate::fit::Estimate;
+use crate::membrane::{Point, Shape};
 use serde::Serialize;
+
+/// Scatter of measured partial levels about the predicted coupling, dB
+/// (standard deviation): modal masses, the tap's spectrum and the room
+/// move levels by a few dB; an assumption, not a measured figure.
+pub const LEVEL_SCATTER_DB: f64 = 3.0;
+/// Predicted couplings below this (−30 dB re the largest) count as this,
+/// so that one partial at a near-node cannot give unbounded evidence (the
+/// tap point is known to a few millimetres only).
+pub const COUPLING_FLOOR: f64 = 0.03;
+/// log₁₀ of the likelihood ratio from which the levels decide the axis
+/// (100 : 1).
+pub const DECISIVE_LOG10_LR: f64 = 2.0;
+
+/// Which labelling the partial levels support.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum AxisVerdict {
+    /// The labelling as reported (after any swap) is supported.
+    Determined,
+    /// The levels cannot tell the two labellings apart.
+    NotDetermined,
+}
+
+/// The tie-break between a labelling and its (m,n) → (n,m) swap.
+#[derive(Debug, Clone, Serialize)]
+pub struct AxisEvidence {
+    /// Outcome.
+    pub verdict: AxisVerdict,
+    /// log₁₀ of L(reported labelling)/L(swapped labelling) from the levels.
+    pub log10_likelihood_ratio: f64,
+    /// The matcher's first labelling was replaced by its swap.
+    pub swapped_from_matcher: bool,
+    /// Partials used.
+    pub modes_used: usize,
+    /// What the verdict rests on, in words.
+    pub detail: String,
+}
+
+/// Residual sum of squares, dB², of levels against the predicted
+/// couplings 20·log₁₀|φ(tap)·φ(pickup)| plus a fitted common gain.
+fn level_misfit(
+    levels: &[((u32, u32), f64)],
+    shape: &Shape,
+    tap: Point,
+    pickup: Option<Point>,
+) -> f64 {
+    let d: Vec<f64> = levels
+        .iter()
+        .map(|&((m, n), level)| {
+            let c = shape.mode_shape(m, n, tap)
+                * pickup.map(|p| shape.mode_shape(m, n, p)).unwrap_or(1.0);
+            level - 20.0 * c.abs().max(COUPLING_FLOOR).log10()
+        })
+        .collect();
+    let g = d.iter().sum::<f64>() / d.len().max(1) as f64;
+    d.iter().map(|x| (x - g).powi(2)).sum()
+}
+
+/// Compares the labelling of `levels` ((m, n), level dB) with its swap
+/// (n, m) through the expected amplitudes at the tap and pickup points.
+/// Both labellings predict the same frequencies, so everything that
+/// depends on frequency alone (tap spectrum, damping, microphone) is the
+/// same for both and only the mode shapes at the two points differ. With
+/// Gaussian level errors of [`LEVEL_SCATTER_DB`] and a common gain fitted
+/// for each, ln L = −SS/(2·s²) + const, so
+/// log₁₀ LR = (SS_swapped − SS_labelled)/(2·s²·ln 10).
+/// Positive values favour the labelling as given.
+pub fn axis_log10_lr(
+    levels: &[((u32, u32), f64)],
+    shape: &Shape,
+    tap: Point,
+    pickup: Option<Point>,
+) -> f64 {
+    let swapped: Vec<((u32, u32), f64)> = levels.iter().map(|&((m, n), l)| ((n, m), l)).collect();
+    let ss = level_misfit(levels, shape, tap, pickup);
+    let ss_swapped = level_misfit(&swapped, shape, tap, pickup);
+    (ss_swapped - ss) / (2.0 * LEVEL_SCATTER_DB.powi(2) * std::f64::consts::LN_10)
+}
 
 /// The biaxial reading.
 #[derive(Debug, Clone, Serialize)]
@@ -43,6 +122,8 @@ pub struct Biaxial {
     pub correlation: f64,
     /// The swapped labelling's (Tx, Ty), N/m or m²/s² (without σ).
     pub swapped: (f64, f64),
+    /// Which labelling the levels support (set by the pipeline).
+    pub axis: Option<AxisEvidence>,
 }
 
 /// Tensions from the two-term fit ((ln A, ln B), covariance).
@@ -93,6 +174,7 @@ pub fn from_two_term(p: [f64; 2], cov: [f64; 3], lx: f64, ly: f64, sigma: Option
         correlation: corr,
         // Swapped labels: A′ = B, B′ = A.
         swapped: (4.0 * lx * lx * b * s, 4.0 * ly * ly * a * s),
+        axis: None,
     }
 }
 
@@ -110,5 +192,45 @@ mod tests {
         assert!((r.tension_x.unwrap().value - t).abs() < 1e-9);
         assert!((r.ratio.value - 1.0).abs() < 1e-12);
         assert!(r.anisotropy_percent.value.abs() < 1e-9);
+    }
+
+    fn square() -> Shape {
+        Shape::Rectangle {
+            width: crate::units::Meters(0.4),
+            height: crate::units::Meters(0.4),
+        }
+    }
+
+    #[test]
+    fn tap_on_the_centre_line_decides_the_axis() {
+        // Tapped at x = Lx/2: every even-m mode is silent, so partials
+        // labelled (1,2), (3,2), (1,4) at strong levels are consistent,
+        // while their swaps (2,1), (2,3), (4,1) would be at nodes.
+        let tap = Point {
+            u: 0.5,
+            v: Some(0.31),
+        };
+        let levels: Vec<((u32, u32), f64)> = [(1, 1), (1, 2), (3, 1), (3, 2), (1, 3), (1, 4)]
+            .iter()
+            .map(|&(m, n)| {
+                let c = square().mode_shape(m, n, tap).abs();
+                ((m, n), 20.0 * c.log10() - 40.0)
+            })
+            .collect();
+        let lr = axis_log10_lr(&levels, &square(), tap, None);
+        assert!(lr > DECISIVE_LOG10_LR, "{lr}");
+        let swapped: Vec<_> = levels.iter().map(|&((m, n), l)| ((n, m), l)).collect();
+        assert!((axis_log10_lr(&swapped, &square(), tap, None) + lr).abs() < 1e-9);
+    }
+
+    #[test]
+    fn tap_on_the_diagonal_cannot_tell() {
+        // At x/Lx = y/Ly the mode shapes of (m,n) and (n,m) are equal.
+        let tap = Point {
+            u: 0.3,
+            v: Some(0.3),
+        };
+        let levels = [((1, 2), -40.0), ((2, 1), -43.0), ((1, 3), -45.0)];
+        assert!(axis_log10_lr(&levels, &square(), tap, None).abs() < 1e-9);
     }
 }

@@ -71,6 +71,10 @@ pub struct BudgetInputs<'a> {
     pub modes: &'a [(u32, u32)],
     /// Standard uncertainty of T from the fit itself, N/m.
     pub u_fit: f64,
+    /// The calibration's parts, when `frequencies_hz` are already divided
+    /// by its factors ([`crate::calibration`]). σ and the dimensions then
+    /// cancel: T = T_ref·(f/f_ref)² mode by mode.
+    pub calibration: Option<crate::calibration::CalibrationTerm>,
 }
 
 /// T = σ·c² refitted for a geometry and σ, the partials held fixed.
@@ -98,9 +102,42 @@ fn tension_for(shape: &Shape, sigma: f64, air: bool, freqs: &[f64], modes: &[(u3
     sigma * c * c
 }
 
+/// Sensitivity coefficients cᵢ = ∂f/∂xᵢ at x by central differences with
+/// the relative step [`STEP_REL`] (GUM §5.1.3, note 2, allows numerical
+/// derivatives). The truncation error is O(h²), about 1e-10 relative.
+pub fn sensitivities(f: &dyn Fn(&[f64]) -> f64, x: &[f64]) -> Vec<f64> {
+    (0..x.len())
+        .map(|i| {
+            let h = x[i].abs().max(1e-12) * STEP_REL;
+            let mut hi = x.to_vec();
+            let mut lo = x.to_vec();
+            hi[i] += h;
+            lo[i] -= h;
+            (f(&hi) - f(&lo)) / (2.0 * h)
+        })
+        .collect()
+}
+
+/// Combined standard uncertainty by the law of propagation of
+/// uncertainty: u_c² = Σᵢ Σⱼ cᵢ·cⱼ·u(xᵢ)·u(xⱼ)·r(xᵢ, xⱼ) (GUM eq. 16), with
+/// r the correlation matrix, or the identity when `r` is None (GUM eq. 10).
+pub fn combined_standard_uncertainty(c: &[f64], u: &[f64], r: Option<&[Vec<f64>]>) -> f64 {
+    let mut var = 0.0;
+    for i in 0..c.len() {
+        for j in 0..c.len() {
+            let rij = match r {
+                Some(r) => r[i][j],
+                None if i == j => 1.0,
+                None => 0.0,
+            };
+            var += c[i] * c[j] * u[i] * u[j] * rij;
+        }
+    }
+    var.max(0.0).sqrt()
+}
+
 fn sens(f: impl Fn(f64) -> f64, x: f64) -> f64 {
-    let h = x.abs().max(1e-12) * STEP_REL;
-    (f(x + h) - f(x - h)) / (2.0 * h)
+    sensitivities(&|v: &[f64]| f(v[0]), &[x])[0]
 }
 
 /// Builds the budget.
@@ -119,10 +156,35 @@ pub fn budget(inp: &BudgetInputs) -> Budget {
         |s| tension_for(&inp.shape, s, inp.air_loaded, f, md),
         inp.sigma,
     );
+    if let Some(cal) = inp.calibration {
+        rows.push(BudgetRow {
+            source: "calibration: reference tension (Type B, common to all modes)".into(),
+            estimate: "factors r(m,n)".into(),
+            standard_uncertainty: format!("{:.4} % of T_ref", 100.0 * cal.u_rel_reference),
+            sensitivity: "T/T_ref".into(),
+            contribution_n_per_m: t0 * cal.u_rel_reference,
+        });
+        rows.push(BudgetRow {
+            source: format!(
+                "calibration: per-mode factors, {} modes (Type A/B)",
+                cal.modes
+            ),
+            estimate: "factors r(m,n)".into(),
+            standard_uncertainty: format!("{:.4} % of T", 100.0 * cal.u_rel_factors),
+            sensitivity: "1".into(),
+            contribution_n_per_m: t0 * cal.u_rel_factors,
+        });
+    }
+    // With a calibration made with the same σ and geometry, both cancel.
+    let (c_sigma, note_cal) = if inp.calibration.is_some() {
+        (0.0, ", cancels against the calibration")
+    } else {
+        (c_sigma, "")
+    };
     let u_sigma = inp.u_sigma.unwrap_or(0.0);
     rows.push(BudgetRow {
         source: format!(
-            "areal density σ (Type B{})",
+            "areal density σ (Type B{}{note_cal})",
             if inp.u_sigma.is_none() {
                 ", no uncertainty given"
             } else {
@@ -135,12 +197,15 @@ pub fn budget(inp: &BudgetInputs) -> Budget {
         contribution_n_per_m: (c_sigma * u_sigma).abs(),
     });
     let u_l = inp.u_size.unwrap_or(0.0);
-    let note = if inp.u_size.is_none() {
-        ", no uncertainty given"
-    } else {
-        ""
+    let note = match (inp.u_size.is_none(), inp.calibration.is_some()) {
+        (true, false) => ", no uncertainty given",
+        (true, true) => ", no uncertainty given, cancels against the calibration",
+        (false, true) => ", cancels against the calibration",
+        (false, false) => "",
     };
+    let cal_scale = if inp.calibration.is_some() { 0.0 } else { 1.0 };
     let mut dim_row = |name: &str, value: f64, c: f64| {
+        let c = c * cal_scale;
         rows.push(BudgetRow {
             source: format!("{name} (Type B{note})"),
             estimate: format!("{:.2} mm", value * 1e3),
@@ -203,11 +268,9 @@ pub fn budget(inp: &BudgetInputs) -> Budget {
             dim_row("diameter d", 2.0 * radius.0, cd);
         }
     }
-    let uc = rows
-        .iter()
-        .map(|r| r.contribution_n_per_m.powi(2))
-        .sum::<f64>()
-        .sqrt();
+    // Each row's contribution is |cᵢ|·u(xᵢ); the inputs are uncorrelated.
+    let contributions: Vec<f64> = rows.iter().map(|r| r.contribution_n_per_m).collect();
+    let uc = combined_standard_uncertainty(&vec![1.0; rows.len()], &contributions, None);
     Budget {
         tension_n_per_m: t0,
         rows,
@@ -247,6 +310,7 @@ mod tests {
             frequencies_hz: &freqs,
             modes: &modes,
             u_fit: 0.0,
+            calibration: None,
         });
         let t = 0.26 * c * c;
         assert!((b.tension_n_per_m / t - 1.0).abs() < 1e-12);
@@ -286,5 +350,67 @@ mod tests {
         let cw = sens(|w| t(w, 0.4), 0.5);
         let ch = sens(|h| t(0.5, h), 0.4);
         assert!(((0.5 * cw + 0.4 * ch) / t0 - 2.0).abs() < 1e-6);
+    }
+
+    /// JCGM 100:2008 (GUM), Annex H.2, "Simultaneous resistance and
+    /// reactance measurement": five sets of (V, I, φ) (Table H.2), the
+    /// measurands R = V/I·cos φ, X = V/I·sin φ, Z = V/I, approach 1 of
+    /// H.2.3: means, experimental standard deviations of the means and
+    /// correlation coefficients (GUM eqs. 5, 14, 17), then eq. 16 with the
+    /// numerical sensitivities of this module. The printed results (Table
+    /// H.4 / H.2.4): R = 127.732 Ω, u(R) = 0.071 Ω; X = 219.847 Ω,
+    /// u(X) = 0.295 Ω; Z = 254.260 Ω, u(Z) = 0.236 Ω. The data and
+    /// results are quoted from memory of the GUM, checked for consistency
+    /// here (the stated means 4.9990 V, 19.6610 mA, 1.04446 rad, s(V̄) =
+    /// 0.0032 V, s(Ī) = 0.0095 mA, s(φ̄) = 0.00075 rad, r(V,I) = −0.36,
+    /// r(V,φ) = 0.86, r(I,φ) = −0.65 all come out of the five sets). All
+    /// agree to the printed digits except u(X): propagation gives
+    /// 0.29558 Ω, one unit in the last printed place above the 0.295 that
+    /// the GUM prints (its approach 2, averaging the five X_k, gives
+    /// 0.29549); the test allows that one unit.
+    #[test]
+    fn gum_h2_resistance_and_reactance() {
+        let sets = [
+            [5.007, 19.663e-3, 1.0456],
+            [4.994, 19.639e-3, 1.0438],
+            [5.005, 19.640e-3, 1.0468],
+            [4.990, 19.685e-3, 1.0428],
+            [4.999, 19.678e-3, 1.0433],
+        ];
+        let n = sets.len() as f64;
+        let mean: Vec<f64> = (0..3)
+            .map(|j| sets.iter().map(|s| s[j]).sum::<f64>() / n)
+            .collect();
+        // Covariance of the means, GUM eq. 17: s(q̄, r̄) = Σ(q−q̄)(r−r̄)/(n(n−1)).
+        let cov = |a: usize, b: usize| {
+            sets.iter()
+                .map(|s| (s[a] - mean[a]) * (s[b] - mean[b]))
+                .sum::<f64>()
+                / (n * (n - 1.0))
+        };
+        let u: Vec<f64> = (0..3).map(|j| cov(j, j).sqrt()).collect();
+        let r: Vec<Vec<f64>> = (0..3)
+            .map(|a| (0..3).map(|b| cov(a, b) / (u[a] * u[b])).collect())
+            .collect();
+        // The stated inputs, to their printed digits.
+        assert!((mean[0] - 4.9990).abs() < 5e-5 && (mean[1] - 19.6610e-3).abs() < 5e-8);
+        assert!((mean[2] - 1.04446).abs() < 5e-6);
+        assert!((u[0] - 0.0032).abs() < 5e-5 && (u[1] - 0.0095e-3).abs() < 5e-8);
+        assert!((u[2] - 0.00075).abs() < 5e-6);
+        assert!((r[0][1] + 0.36).abs() < 0.005 && (r[0][2] - 0.86).abs() < 0.005);
+        assert!((r[1][2] + 0.65).abs() < 0.005);
+        type Measurand = fn(&[f64]) -> f64;
+        let cases: [(&str, Measurand, f64, f64, f64); 3] = [
+            ("R", |x| x[0] / x[1] * x[2].cos(), 127.732, 0.071, 0.0005),
+            ("X", |x| x[0] / x[1] * x[2].sin(), 219.847, 0.295, 0.001),
+            ("Z", |x| x[0] / x[1], 254.260, 0.236, 0.0005),
+        ];
+        for (name, f, value, u_printed, tol) in cases {
+            let y = f(&mean);
+            let c = sensitivities(&f, &mean);
+            let uc = combined_standard_uncertainty(&c, &u, Some(&r));
+            assert!((y - value).abs() < 0.0005, "{name} = {y}");
+            assert!((uc - u_printed).abs() < tol, "u({name}) = {uc}");
+        }
     }
 }

@@ -61,6 +61,31 @@ pub enum Command {
         /// With --out, skip the PNG.
         #[arg(long)]
         no_picture: bool,
+        /// Calibration file from `tonus calibrate`: fit against the calibrated mode lines (isotropic model only).
+        #[arg(long)]
+        calibration: Option<PathBuf>,
+    },
+    /// Per-mode correction factors from reference recordings at a known tension.
+    Calibrate {
+        /// Reference recordings (WAV) of one membrane at the known tension.
+        #[arg(required = true)]
+        recordings: Vec<PathBuf>,
+        #[command(flatten)]
+        panel: PanelArgs,
+        #[command(flatten)]
+        input: InputArgs,
+        /// The known tension, e.g. 3000N/m or 30N/cm.
+        #[arg(long)]
+        tension: String,
+        /// Its standard uncertainty (k = 1), e.g. 30N/m.
+        #[arg(long)]
+        tension_u: String,
+        /// Model used to label the references: isotropic (default) or air (light film in air).
+        #[arg(long)]
+        model: Option<String>,
+        /// Calibration file to write (TOML).
+        #[arg(long)]
+        out: PathBuf,
     },
     /// Predicted mode table for a tension, or the tension for a fundamental.
     Modes {
@@ -143,6 +168,9 @@ pub enum Command {
         /// Bending stiffness D in N·m (rectangle, simply supported plate), e.g. 0.02.
         #[arg(long)]
         bending_stiffness: Option<f64>,
+        /// Uneven tension on a circle: Txx = T(1+ε), Tyy = T(1−ε), ε as a fraction or percent, e.g. 0.02 or 2% (splits each (1,n) pair; tap off the axes, e.g. --tap-at 0.6,30, to hear both members).
+        #[arg(long)]
+        tension_skew: Option<String>,
     },
     /// Decide recordings against a specification (pass / fail /
     /// indeterminate / not measured), in parallel, with a history record.
@@ -257,6 +285,15 @@ pub struct PanelArgs {
     /// Standard uncertainty of each dimension, e.g. 0.5mm.
     #[arg(long)]
     pub size_u: Option<String>,
+    /// Standard uncertainty of the thickness, e.g. 0.005mm (Young's modulus).
+    #[arg(long)]
+    pub thickness_u: Option<String>,
+    /// Poisson's ratio ν, e.g. 0.38 (with --thickness: Young's modulus from D, --model stiff).
+    #[arg(long)]
+    pub poisson_ratio: Option<String>,
+    /// Standard uncertainty of Poisson's ratio, e.g. 0.02.
+    #[arg(long)]
+    pub poisson_ratio_u: Option<String>,
 }
 
 /// Recording input flags.
@@ -301,6 +338,9 @@ impl PanelArgs {
             areal_density_u: self.areal_density_u.clone(),
             size_u: self.size_u.clone(),
             model: None,
+            thickness_u: self.thickness_u.clone(),
+            poisson_ratio: self.poisson_ratio.clone(),
+            poisson_ratio_u: self.poisson_ratio_u.clone(),
         };
         let base = match &self.panel {
             Some(p) => PanelSpec::from_file(p)?,
@@ -387,6 +427,40 @@ pub fn fit_options(
     Ok(FitOptions {
         model,
         analysis: input.analysis()?,
+        calibration: None,
+    })
+}
+
+/// Validated options of `calibrate`: the labelling model (isotropic or
+/// air), the known tension and its standard uncertainty in N/m.
+///
+/// # Errors
+/// Another model, malformed or impossible tensions.
+pub fn calibrate_options(
+    model: Option<&str>,
+    tension: &str,
+    tension_u: &str,
+    input: &InputArgs,
+) -> Result<(FitOptions, f64, f64)> {
+    let opts = fit_options(false, model, input)?;
+    if !matches!(opts.model, FitModel::Isotropic | FitModel::AirLoaded) {
+        return Err(TonusError::Panel(
+            "calibrate labels the references with --model isotropic or air; the factors are always against the ideal membrane".into(),
+        ));
+    }
+    let t = units::parse_tension("--tension", tension)?.0;
+    let u = units::parse_tension("--tension-u", tension_u)?.0;
+    Ok((opts, t, u))
+}
+
+/// Reads a calibration file for `fit --calibration`.
+///
+/// # Errors
+/// Unreadable or invalid file.
+pub fn load_calibration(path: &std::path::Path) -> Result<crate::calibration::Loaded> {
+    Ok(crate::calibration::Loaded {
+        path: path.to_path_buf(),
+        calibration: crate::calibration::Calibration::from_file(path)?,
     })
 }
 
@@ -416,6 +490,7 @@ pub fn synth_config(
     air: bool,
     tension_y: Option<&str>,
     bending_stiffness: Option<f64>,
+    tension_skew: Option<&str>,
 ) -> Result<SynthConfig> {
     let p = panel.to_panel()?;
     let density = p.areal_density.ok_or_else(|| {
@@ -498,10 +573,40 @@ pub fn synth_config(
         }
     }
     cfg.bending_stiffness = bending_stiffness;
+    cfg.tension_skew = tension_skew.map(parse_skew).transpose()?;
+    if cfg.tension_skew.is_some() && !matches!(p.shape, crate::membrane::Shape::Circle { .. }) {
+        return Err(TonusError::Panel(
+            "--tension-skew is for a circle; for a rectangle give --tension-y".into(),
+        ));
+    }
     cfg.tension_y = tension_y
         .map(|t| units::parse_tension("--tension-y", t))
         .transpose()?;
     Ok(cfg)
+}
+
+/// Parses `--tension-skew`: a fraction (0.02) or a percentage (2%),
+/// |ε| < 0.5.
+fn parse_skew(text: &str) -> Result<f64> {
+    let t = text.trim();
+    let (num, scale) = match t.strip_suffix('%') {
+        Some(n) => (n.trim(), 0.01),
+        None => (t, 1.0),
+    };
+    let v = num.parse::<f64>().map_err(|_| TonusError::BadQuantity {
+        key: "--tension-skew".into(),
+        value: text.into(),
+        expected: "a fraction or a percentage".into(),
+        example: "0.02 or 2%".into(),
+    })? * scale;
+    if !(v.is_finite() && v.abs() < 0.5) {
+        return Err(TonusError::OutOfRange {
+            key: "--tension-skew".into(),
+            value: text.into(),
+            why: "ε must lie between −0.5 and 0.5 (−50 % to 50 %)".into(),
+        });
+    }
+    Ok(v)
 }
 
 /// Parses the synth sample format flag into (bits, float).

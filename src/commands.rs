@@ -141,6 +141,100 @@ pub fn fit(
     })
 }
 
+/// `tonus calibrate`: fits each reference recording (labelled with the
+/// model in `opts`), forms the per-mode factors against the ideal
+/// membrane at the known tension (N/m, with its standard uncertainty) and
+/// writes the calibration file atomically.
+///
+/// # Errors
+/// Unreadable recordings, a panel without areal density, no fitted mode,
+/// an unwritable output.
+pub fn calibrate(
+    paths: &[PathBuf],
+    channel: ChannelChoice,
+    panel: &Panel,
+    opts: &FitOptions,
+    tension: (f64, f64),
+    out: &Path,
+) -> Result<Outcome> {
+    let sigma = panel.areal_density.ok_or_else(|| {
+        TonusError::Panel(
+            "calibrate needs --areal-density: the factors compare with the ideal membrane at the known tension".into(),
+        )
+    })?;
+    let mut refs = Vec::new();
+    let mut stderr = String::new();
+    for path in paths {
+        let bytes = std::fs::read(path).map_err(|e| TonusError::Io {
+            path: path.clone(),
+            reason: e.to_string(),
+        })?;
+        let rec = recording::read_wav(path, channel)?;
+        let m = pipeline::measure(&rec, panel, opts)?;
+        let modes: Vec<(u32, u32, f64)> = m
+            .modes
+            .iter()
+            .filter(|r| !r.outlier && !r.crowded)
+            .map(|r| (r.m, r.n, r.measured_hz))
+            .collect();
+        if m.quality.grade == Grade::Unfit || modes.is_empty() {
+            return Err(TonusError::NoFit(format!(
+                "calibrate: {} could not be fitted ({}); check the recording, the geometry and --model",
+                path.display(),
+                m.quality.reasons.join("; ")
+            )));
+        }
+        for w in &m.warnings {
+            stderr.push_str(&format!("warning: {}: {w}\n", path.display()));
+        }
+        refs.push(crate::calibration::Reference {
+            file: path.clone(),
+            sha256: crate::spec::sha256_hex(&bytes),
+            modes,
+        });
+    }
+    let label_model = match opts.model {
+        crate::fit::FitModel::AirLoaded => "air",
+        _ => "isotropic",
+    };
+    let cal = crate::calibration::Calibration::from_references(
+        panel.shape,
+        sigma.0,
+        tension.0,
+        tension.1,
+        &refs,
+        label_model,
+    )?;
+    report::write_atomic(out, cal.to_toml().as_bytes())?;
+    let mut stdout = format!(
+        "{} — {} reference recording(s) at {} ± {} N/m, {} modes\n{:<10} {:>10} {:>10} {:>6}\n",
+        panel.describe(),
+        refs.len(),
+        units::sig(tension.0, 5),
+        units::sig(tension.1, 3),
+        cal.modes.len(),
+        "mode",
+        "factor",
+        "u (k=1)",
+        "refs"
+    );
+    for f in &cal.modes {
+        stdout.push_str(&format!(
+            "{:<10} {:>10.5} {:>10.5} {:>6}\n",
+            format!("({},{})", f.m, f.n),
+            f.factor,
+            f.u,
+            f.recordings
+        ));
+    }
+    stdout.push_str(&format!("written: {}\n", out.display()));
+    Ok(Outcome {
+        stdout,
+        stderr,
+        exit: 0,
+    })
+}
+
 /// `tonus modes`: the line table for a tension, or the tension (or wave
 /// speed) that puts the fundamental at a target frequency.
 ///

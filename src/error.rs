@@ -56,6 +56,11 @@ pub enum TonusError {
     #[error("{0}")]
     NoFit(String),
 
+    /// The data cannot determine the parameters asked for
+    /// ([`crate::identifiability`]).
+    #[error("{0}")]
+    NotIdentifiable(String),
+
     /// Writing an output failed.
     #[error("cannot write {path}: {reason}")]
     Write { path: PathBuf, reason: String },

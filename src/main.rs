@@ -25,15 +25,30 @@ fn run(cli: Cli) -> Result<Outcome> {
             json,
             out,
             no_picture,
+            calibration,
         } => commands::fit(
             &recording,
             input.channel()?,
             &panel.to_panel()?,
-            &cli::fit_options(
-                free_aspect,
-                model.as_deref().or(panel.to_spec()?.model.as_deref()),
-                &input,
-            )?,
+            &tonus::pipeline::FitOptions {
+                calibration: calibration
+                    .as_deref()
+                    .map(cli::load_calibration)
+                    .transpose()?
+                    .map(std::sync::Arc::new),
+                // A calibration replaces the panel file's model; only a
+                // --model flag given with it is refused.
+                ..cli::fit_options(
+                    free_aspect,
+                    model.as_deref().or(if calibration.is_none() {
+                        panel.to_spec()?.model
+                    } else {
+                        None
+                    }
+                    .as_deref()),
+                    &input,
+                )?
+            },
             &commands::OutputOptions {
                 unit: cli::tension_unit(&tension_unit)?,
                 as_json: json,
@@ -77,6 +92,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             air,
             tension_y,
             bending_stiffness,
+            tension_skew,
         } => {
             let cfg = cli::synth_config(
                 &panel,
@@ -97,9 +113,30 @@ fn run(cli: Cli) -> Result<Outcome> {
                 air,
                 tension_y.as_deref(),
                 bending_stiffness,
+                tension_skew.as_deref(),
             )?;
             let (b, float) = cli::sample_format(&bits)?;
             commands::synth(&cfg, &output, b, float)
+        }
+        Command::Calibrate {
+            recordings,
+            panel,
+            input,
+            tension,
+            tension_u,
+            model,
+            out,
+        } => {
+            let (opts, t, u) =
+                cli::calibrate_options(model.as_deref(), &tension, &tension_u, &input)?;
+            commands::calibrate(
+                &recordings,
+                input.channel()?,
+                &panel.to_panel()?,
+                &opts,
+                (t, u),
+                &out,
+            )
         }
         Command::Demo { recordings, out } => commands::demo(&recordings, &out),
         Command::Inspect {

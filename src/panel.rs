@@ -49,6 +49,12 @@ pub struct PanelSpec {
     pub size_u: Option<String>,
     /// Fit model to use for this panel (isotropic, free-aspect, air).
     pub model: Option<String>,
+    /// Standard uncertainty of the thickness (for Young's modulus).
+    pub thickness_u: Option<String>,
+    /// Poisson's ratio ν (for Young's modulus from D).
+    pub poisson_ratio: Option<String>,
+    /// Its standard uncertainty.
+    pub poisson_ratio_u: Option<String>,
 }
 
 impl PanelSpec {
@@ -68,6 +74,9 @@ impl PanelSpec {
             areal_density_u: self.areal_density_u.or(base.areal_density_u),
             size_u: self.size_u.or(base.size_u),
             model: self.model.or(base.model),
+            thickness_u: self.thickness_u.or(base.thickness_u),
+            poisson_ratio: self.poisson_ratio.or(base.poisson_ratio),
+            poisson_ratio_u: self.poisson_ratio_u.or(base.poisson_ratio_u),
         }
     }
 
@@ -113,12 +122,15 @@ impl PanelSpec {
                 "areal-density-u" | "areal_density_u" => &mut spec.areal_density_u,
                 "size-u" | "size_u" => &mut spec.size_u,
                 "model" => &mut spec.model,
+                "thickness-u" | "thickness_u" => &mut spec.thickness_u,
+                "poisson-ratio" | "poisson_ratio" => &mut spec.poisson_ratio,
+                "poisson-ratio-u" | "poisson_ratio_u" => &mut spec.poisson_ratio_u,
                 "name" | "note" => continue,
                 _ => {
                     return Err(TonusError::ConfigFile {
                         path: path.to_path_buf(),
                         reason: format!(
-                            "unknown key '{key}'; known keys: shape, width, height, diameter, radius, areal-density, areal-density-u, thickness, density, size-u, tap-at, pickup-at, model, name, note"
+                            "unknown key '{key}'; known keys: shape, width, height, diameter, radius, areal-density, areal-density-u, thickness, thickness-u, density, poisson-ratio, poisson-ratio-u, size-u, tap-at, pickup-at, model, name, note"
                         ),
                     })
                 }
@@ -144,6 +156,22 @@ pub struct Panel {
     pub areal_density_u: Option<KgPerM2>,
     /// Standard uncertainty of each dimension, if given.
     pub size_u: Option<Meters>,
+    /// Thickness and Poisson's ratio, when both are given (Young's modulus
+    /// from the plate model's D).
+    pub plate_material: Option<PlateMaterial>,
+}
+
+/// What Young's modulus E = 12·D·(1 − ν²)/h³ needs besides D.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct PlateMaterial {
+    /// Thickness h, m.
+    pub thickness_m: f64,
+    /// Its standard uncertainty, m (0 when not given).
+    pub thickness_u_m: f64,
+    /// Poisson's ratio ν.
+    pub poisson_ratio: f64,
+    /// Its standard uncertainty (0 when not given).
+    pub poisson_ratio_u: f64,
 }
 
 impl Panel {
@@ -204,7 +232,8 @@ impl Panel {
             spec.thickness.as_deref(),
             spec.density.as_deref(),
         ) {
-            (Some(a), None, None) => Some(units::parse_areal_density("--areal-density", a)?),
+            // A thickness beside the areal density serves Young's modulus.
+            (Some(a), _, None) => Some(units::parse_areal_density("--areal-density", a)?),
             (None, Some(t), Some(d)) => {
                 let t = units::parse_length("--thickness", t)?;
                 let d = units::parse_density("--density", d)?;
@@ -216,6 +245,7 @@ impl Panel {
                     "give --areal-density or --thickness with --density, not both".into(),
                 ))
             }
+            (None, Some(_), None) if spec.poisson_ratio.is_some() => None,
             (None, Some(_), None) => {
                 return Err(TonusError::Panel(
                     "--thickness needs --density (e.g. --density 1390kg/m3)".into(),
@@ -247,6 +277,7 @@ impl Panel {
             .as_deref()
             .map(|t| units::parse_length("--size-u", t))
             .transpose()?;
+        let plate_material = plate_material(spec)?;
         Ok(Panel {
             shape,
             areal_density,
@@ -254,6 +285,7 @@ impl Panel {
             pickup,
             areal_density_u,
             size_u,
+            plate_material,
         })
     }
 
@@ -266,6 +298,73 @@ impl Panel {
             Shape::Circle { radius } => format!("circle ⌀ {:.0} mm", radius.0 * 2e3),
         }
     }
+}
+
+/// Thickness and Poisson's ratio with their uncertainties, checked:
+/// −1 < ν < 0.5 (the range a stable isotropic solid allows), u ≥ 0.
+fn plate_material(spec: &PanelSpec) -> Result<Option<PlateMaterial>> {
+    let nu = |key: &str, text: &str| -> Result<f64> {
+        text.trim()
+            .parse::<f64>()
+            .map_err(|_| TonusError::BadQuantity {
+                key: key.into(),
+                value: text.into(),
+                expected: "a plain number".into(),
+                example: "0.38".into(),
+            })
+    };
+    let (h, p) =
+        match (spec.thickness.as_deref(), spec.poisson_ratio.as_deref()) {
+            (Some(h), Some(p)) => (
+                units::parse_length("--thickness", h)?.0,
+                nu("--poisson-ratio", p)?,
+            ),
+            (None, Some(_)) => return Err(TonusError::Panel(
+                "--poisson-ratio needs --thickness for Young's modulus (e.g. --thickness 0.19mm)"
+                    .into(),
+            )),
+            _ => {
+                if spec.thickness_u.is_some() && spec.thickness.is_none() {
+                    return Err(TonusError::Panel("--thickness-u needs --thickness".into()));
+                }
+                return Ok(None);
+            }
+        };
+    if !(p > -1.0 && p < 0.5) {
+        return Err(TonusError::OutOfRange {
+            key: "--poisson-ratio".into(),
+            value: p.to_string(),
+            why: "Poisson's ratio of an isotropic solid lies between −1 and 0.5 (films 0.3–0.45)"
+                .into(),
+        });
+    }
+    let h_u = spec
+        .thickness_u
+        .as_deref()
+        .map(|t| units::parse_length("--thickness-u", t))
+        .transpose()?
+        .map(|m| m.0)
+        .unwrap_or(0.0);
+    let p_u = match spec.poisson_ratio_u.as_deref() {
+        Some(t) => {
+            let v = nu("--poisson-ratio-u", t)?;
+            if !(0.0..0.5).contains(&v) {
+                return Err(TonusError::OutOfRange {
+                    key: "--poisson-ratio-u".into(),
+                    value: t.into(),
+                    why: "a standard uncertainty of ν lies between 0 and 0.5".into(),
+                });
+            }
+            v
+        }
+        None => 0.0,
+    };
+    Ok(Some(PlateMaterial {
+        thickness_m: h,
+        thickness_u_m: h_u,
+        poisson_ratio: p,
+        poisson_ratio_u: p_u,
+    }))
 }
 
 /// Parses "x,y" (rectangle, fractions of width and height) or "r" / "r,θ"
@@ -356,5 +455,39 @@ mod tests {
             .unwrap_err()
             .to_string()
             .contains("--areal-density"));
+    }
+
+    #[test]
+    fn thickness_and_poisson_ratio_for_youngs_modulus() {
+        let spec = PanelSpec {
+            width: Some("600mm".into()),
+            height: Some("400mm".into()),
+            areal_density: Some("0.5kg/m2".into()),
+            thickness: Some("0.5mm".into()),
+            thickness_u: Some("0.005mm".into()),
+            poisson_ratio: Some("0.35".into()),
+            ..Default::default()
+        };
+        let p = Panel::from_spec(&spec).unwrap();
+        assert_eq!(p.areal_density.unwrap().0, 0.5);
+        let m = p.plate_material.unwrap();
+        assert!((m.thickness_m - 5e-4).abs() < 1e-15 && m.poisson_ratio_u == 0.0);
+        let bad = PanelSpec {
+            poisson_ratio: Some("0.5".into()),
+            ..spec.clone()
+        };
+        assert!(Panel::from_spec(&bad)
+            .unwrap_err()
+            .to_string()
+            .contains("--poisson-ratio"));
+        let lone = PanelSpec {
+            thickness: None,
+            thickness_u: None,
+            ..spec
+        };
+        assert!(Panel::from_spec(&lone)
+            .unwrap_err()
+            .to_string()
+            .contains("needs --thickness"));
     }
 }

@@ -542,9 +542,9 @@ pub const REFINE_HALF_WIDTH_HZ: f64 = 20.0;
 pub const REFINE_NEIGHBOUR_FRACTION: f64 = 0.45;
 /// Components per band: a single partial or a split pair.
 pub const REFINE_MAX_ORDER: usize = 2;
-/// A refined frequency may move from its FFT peak by at most this many
-/// FFT resolution bins (1/span); farther, the fit has locked onto
-/// something else and the FFT value stands.
+/// The strongest component of a band may lie at most this many FFT
+/// resolution bins (1/span) from the peak; farther, the fit has locked
+/// onto something else and the FFT value stands.
 pub const REFINE_MAX_SHIFT_BINS: f64 = 1.5;
 
 /// dB per neper: a level decay rate in dB/s is 20/ln 10 times the
@@ -595,14 +595,14 @@ pub fn refine(
             .filter(|&&f| f != f0)
             .map(|&f| (f - f0).abs())
             .fold(f64::INFINITY, f64::min);
-        // Two resolution bins or the line's half-width, whichever is wider:
-        // a split pair lies within the peak.
+        // Two resolution bins or four half-widths of the line, whichever
+        // is wider: a split pair lies within the peak.
         let line_hwhm = p
             .decay_rate_db_per_s
             .map(|r| r.max(0.0) / DB_PER_NEPER / (2.0 * std::f64::consts::PI))
             .unwrap_or(0.0);
         let half_width = (2.0 * resolution_hz)
-            .max(line_hwhm)
+            .max(4.0 * line_hwhm)
             .min(REFINE_NEIGHBOUR_FRACTION * gap)
             .min(REFINE_HALF_WIDTH_HZ);
         // The noise variance per sample at the peak, from the floor (which
@@ -627,14 +627,19 @@ fn apply_fit(
     components: &[crate::estimator::DampedComponent],
     resolution_hz: f64,
 ) {
-    let near: Vec<_> = components
+    let usable: Vec<_> = components
         .iter()
-        .filter(|c| {
-            (c.frequency_hz - p.frequency_hz).abs() <= REFINE_MAX_SHIFT_BINS * resolution_hz
-                && c.frequency_u_hz.is_finite()
-                && c.decay_rate_per_s.is_finite()
-        })
+        .filter(|c| c.frequency_u_hz.is_finite() && c.decay_rate_per_s.is_finite())
         .collect();
+    // The strongest component must be the FFT peak itself; a second one
+    // anywhere in the band makes a pair.
+    let locked = usable
+        .iter()
+        .max_by(|a, b| a.amplitude.total_cmp(&b.amplitude))
+        .is_some_and(|c| {
+            (c.frequency_hz - p.frequency_hz).abs() <= REFINE_MAX_SHIFT_BINS * resolution_hz
+        });
+    let near: Vec<_> = if locked { usable } else { Vec::new() };
     let member = |c: &crate::estimator::DampedComponent| PairMember {
         frequency_hz: c.frequency_hz,
         frequency_u_hz: c.frequency_u_hz,
@@ -665,6 +670,50 @@ fn apply_fit(
         }
         _ => {}
     }
+}
+
+/// Joins two partials that the peak picker separated into one split pair
+/// kept at `keep` (its frequency the members' mean, its level their power
+/// sum); `absorbed` stays in the list unchanged but belongs to the pair.
+/// Members without an uncertainty (FFT-only values) get the pair's
+/// frequency uncertainty as None.
+pub fn merge_pair(partials: &mut [Partial], keep: usize, absorbed: usize) {
+    if keep == absorbed || keep >= partials.len() || absorbed >= partials.len() {
+        return;
+    }
+    let (a, b) = (partials[keep].clone(), partials[absorbed].clone());
+    let member = |p: &Partial| PairMember {
+        frequency_hz: p.frequency_hz,
+        frequency_u_hz: p.frequency_u_hz.unwrap_or(f64::NAN),
+        crlb_hz: p.crlb_hz.unwrap_or(f64::NAN),
+        decay_rate_db_per_s: p.decay_rate_db_per_s.unwrap_or(f64::NAN),
+        t60_s: p.t60_s.unwrap_or(f64::NAN),
+        level_db: p
+            .amplitude
+            .map(|x| 20.0 * x.max(1e-300).log10())
+            .unwrap_or(p.level_db),
+    };
+    let (lo, hi) = if a.frequency_hz <= b.frequency_hz {
+        (member(&a), member(&b))
+    } else {
+        (member(&b), member(&a))
+    };
+    let p = &mut partials[keep];
+    p.frequency_hz = 0.5 * (a.frequency_hz + b.frequency_hz);
+    p.frequency_u_hz = match (a.frequency_u_hz, b.frequency_u_hz) {
+        (Some(x), Some(y)) => Some(0.5 * x.hypot(y)),
+        _ => None,
+    };
+    p.crlb_hz = match (a.crlb_hz, b.crlb_hz) {
+        (Some(x), Some(y)) => Some(0.5 * x.hypot(y)),
+        _ => None,
+    };
+    p.level_db = 10.0 * (10f64.powf(a.level_db / 10.0) + 10f64.powf(b.level_db / 10.0)).log10();
+    p.amplitude = match (a.amplitude, b.amplitude) {
+        (Some(x), Some(y)) => Some(x.hypot(y)),
+        _ => None,
+    };
+    p.pair = Some(SplitPair::new(lo, hi));
 }
 
 /// Sets decay rate, its uncertainty, T60 and Q from an amplitude decay

@@ -26,6 +26,8 @@ pub struct FitOptions {
     pub model: FitModel,
     /// Partial finder settings.
     pub analysis: AnalysisConfig,
+    /// Per-mode correction factors to fit against ([`crate::calibration`]).
+    pub calibration: Option<std::sync::Arc<crate::calibration::Loaded>>,
 }
 
 impl Default for FitOptions {
@@ -33,6 +35,7 @@ impl Default for FitOptions {
         FitOptions {
             model: FitModel::Isotropic,
             analysis: AnalysisConfig::default(),
+            calibration: None,
         }
     }
 }
@@ -76,6 +79,8 @@ pub struct ModeRow {
     pub outlier: bool,
     /// Left out of the fit because a neighbouring line shares its peak.
     pub crowded: bool,
+    /// Left out of the fit because the calibration has no factor for it.
+    pub uncalibrated: bool,
     /// Other labels that fit this partial about as well.
     pub alternatives: Vec<String>,
 }
@@ -129,6 +134,113 @@ pub struct Measurement {
     /// Every tap of a recording with several, combined (set by
     /// [`crate::taps::measure_taps`] callers).
     pub taps: Option<crate::taps::TapSeries>,
+    /// The calibration applied, if any.
+    pub calibration: Option<crate::calibration::Applied>,
+    /// Rank, condition and correlations of the fit's Jacobian.
+    pub identifiability: Option<crate::identifiability::Identifiability>,
+    /// Uneven tension from the resolved split pairs (circle, or square
+    /// panel), when any pair was resolved.
+    pub evenness: Option<crate::evenness::Evenness>,
+}
+
+/// FFT-resolved split pairs: for each line of two or more modes, the
+/// partials within [`matching::MATCH_GATE_CENTS`] of it (at the matched
+/// wave speed) and nearer to it than to any other coupled line, either
+/// assigned to it or left unmatched. When there are two or more, the two
+/// strongest are a pair: the first keeps the assignment, the second is
+/// taken out of the assignments and the unmatched list. Returns the
+/// (kept, absorbed) partial indices.
+fn pair_partners(
+    parts: &[partials::Partial],
+    lines: &[ModeLine],
+    m: &mut Matching,
+) -> Vec<(usize, usize)> {
+    let c0 = m.wave_speed_m_per_s;
+    let cents = |f: f64, g: f64| fit::CENTS_PER_LN * (f / (c0 * g)).ln();
+    let nearest_line = |f: f64| {
+        lines
+            .iter()
+            .enumerate()
+            .filter(|(_, l)| l.coupling >= WEAK_COUPLING)
+            .min_by(|a, b| {
+                cents(f, a.1.factor)
+                    .abs()
+                    .total_cmp(&cents(f, b.1.factor).abs())
+            })
+            .map(|(j, _)| j)
+    };
+    let mut out = Vec::new();
+    for (j, line) in lines.iter().enumerate() {
+        if line.degeneracy < 2 {
+            continue;
+        }
+        let mut cands: Vec<usize> = m
+            .assignments
+            .iter()
+            .filter(|a| a.line == j)
+            .map(|a| a.partial)
+            .chain(m.unmatched.iter().copied())
+            .filter(|&i| {
+                let f = parts[i].frequency_hz;
+                cents(f, line.factor).abs() <= matching::MATCH_GATE_CENTS
+                    && nearest_line(f) == Some(j)
+            })
+            .collect();
+        if cands.len() < 2 {
+            continue;
+        }
+        cands.sort_by(|&a, &b| parts[b].level_db.total_cmp(&parts[a].level_db));
+        let (p, q) = (cands[0], cands[1]);
+        // The kept member holds this line's assignment.
+        let kept = match m
+            .assignments
+            .iter_mut()
+            .find(|a| a.line == j && (a.partial == p || a.partial == q))
+        {
+            Some(a) => {
+                a.partial = p;
+                p
+            }
+            None => continue,
+        };
+        m.assignments.retain(|a| !(a.line == j && a.partial == q));
+        m.assignments
+            .dedup_by(|a, b| a.line == b.line && a.partial == b.partial);
+        m.unmatched.retain(|&i| i != q && i != p);
+        out.push((kept, q));
+    }
+    out
+}
+
+/// Uneven tension from the split pairs on degenerate lines: on a circle
+/// every resolved (m ≥ 1) pair, on a square panel the (m,n)/(n,m) pairs
+/// ([`crate::evenness`]). Outliers are left out.
+fn evenness_of(panel: &Panel, modes: &[ModeRow]) -> Option<crate::evenness::Evenness> {
+    let pairs: Vec<crate::evenness::PairInput> = modes
+        .iter()
+        .filter(|r| r.degeneracy >= 2 && !r.outlier)
+        .filter_map(|r| {
+            let p = r.pair?;
+            Some(crate::evenness::PairInput::new(
+                r.m,
+                r.n,
+                p.lower.frequency_hz,
+                p.lower.frequency_u_hz,
+                p.upper.frequency_hz,
+                p.upper.frequency_u_hz,
+            ))
+        })
+        .collect();
+    if pairs.is_empty() {
+        return None;
+    }
+    match panel.shape {
+        Shape::Circle { .. } => crate::evenness::circle_evenness(&pairs),
+        Shape::Rectangle { width, height } if (width.0 - height.0).abs() < 1e-9 * width.0 => {
+            crate::evenness::square_evenness(&pairs)
+        }
+        Shape::Rectangle { .. } => None,
+    }
 }
 
 /// Predicted lines for a panel up to at least `g_max`, from a small
@@ -265,6 +377,46 @@ fn plate_predictor(obs: &[Observation], lx: f64, ly: f64) -> Option<Predictor> {
     }))
 }
 
+/// The axis evidence for a biaxial labelling ([`crate::biaxial::axis_log10_lr`]):
+/// swapped when the levels favour the swap decisively, not determined when
+/// they cannot tell or the tap point is unknown.
+fn axis_tie_break(levels: &[((u32, u32), f64)], panel: &Panel) -> crate::biaxial::AxisEvidence {
+    use crate::biaxial::{AxisEvidence, AxisVerdict, DECISIVE_LOG10_LR};
+    let Some(tap) = panel.tap else {
+        return AxisEvidence {
+            verdict: AxisVerdict::NotDetermined,
+            log10_likelihood_ratio: 0.0,
+            swapped_from_matcher: false,
+            modes_used: levels.len(),
+            detail: "axis not determined: the tap point is not given (--tap-at); the swapped solution is reported beside".into(),
+        };
+    };
+    let lr = crate::biaxial::axis_log10_lr(levels, &panel.shape, tap, panel.pickup);
+    let swap = lr < -DECISIVE_LOG10_LR;
+    let lr_reported = if swap { -lr } else { lr };
+    if lr_reported > DECISIVE_LOG10_LR {
+        AxisEvidence {
+            verdict: AxisVerdict::Determined,
+            log10_likelihood_ratio: lr_reported,
+            swapped_from_matcher: swap,
+            modes_used: levels.len(),
+            detail: format!(
+                "axis determined by the partial levels at the tap and pickup points: likelihood ratio 10^{lr_reported:.1} : 1 against the swapped labelling"
+            ),
+        }
+    } else {
+        AxisEvidence {
+            verdict: AxisVerdict::NotDetermined,
+            log10_likelihood_ratio: lr,
+            swapped_from_matcher: false,
+            modes_used: levels.len(),
+            detail: format!(
+                "axis not determined: the partial levels favour neither labelling (likelihood ratio 10^{lr:.1} : 1); tap off the diagonal or give a known axis, the swapped solution is reported beside"
+            ),
+        }
+    }
+}
+
 /// Analyses a recording and fits the panel's model to it.
 ///
 /// # Errors
@@ -302,6 +454,14 @@ pub fn measure_with(
             "--free-aspect needs a rectangle; a circle has no aspect ratio".into(),
         ));
     }
+    if let Some(cal) = &opts.calibration {
+        if opts.model != FitModel::Isotropic {
+            return Err(TonusError::Panel(
+                "--calibration corrects the ideal isotropic membrane; leave out --model (the factors already hold air loading and supports)".into(),
+            ));
+        }
+        cal.calibration.check_panel(panel, &cal.path)?;
+    }
     // The FFT peaks label the modes (refinement comes after matching).
     let coarse = AnalysisConfig {
         refine: false,
@@ -331,6 +491,10 @@ pub fn measure_with(
         (FitModel::AirLoaded, Some(s)) => crate::airload::loaded_lines(&lines, s.0),
         _ => lines,
     };
+    let (lines, uncalibrated) = match &opts.calibration {
+        Some(cal) => cal.calibration.apply(&lines),
+        None => (lines, Vec::new()),
+    };
     let matching = matching::match_modes(
         parts,
         &lines,
@@ -338,7 +502,7 @@ pub fn measure_with(
     );
     // Biaxial tension moves the pure-m and pure-n modes apart by more than
     // the matching gate: relabel against the biaxial model itself.
-    let (lines, matching) = match (opts.model, matching, panel.shape) {
+    let (mut lines, mut matching) = match (opts.model, matching, panel.shape) {
         (FitModel::Biaxial, Some(m), _) => {
             let (l, mm) = relabel(parts, &lines, m, biaxial_predictor);
             (l, Some(mm))
@@ -350,11 +514,18 @@ pub fn measure_with(
         (_, other, _) => (lines, other),
     };
     let mut fit_result = None;
+    let mut identifiability = None;
     let mut biaxial: Option<crate::biaxial::Biaxial> = None;
     let mut plate: Option<crate::plate::PlateFit> = None;
     let mut modes = Vec::new();
     let mut missing = Vec::new();
     let mut unmatched: Vec<usize> = (0..parts.len()).collect();
+    // Members of a split pair that the FFT already separated: the second
+    // member joins the first on their one degenerate line.
+    let partners = match matching.as_mut() {
+        Some(m) => pair_partners(parts, &lines, m),
+        None => Vec::new(),
+    };
     if let Some(m) = &matching {
         // A partial whose line has a coupled neighbour closer than
         // CROWDED_RESOLUTIONS resolution widths (1/span) shares its peak
@@ -385,11 +556,15 @@ pub fn measure_with(
                 .zip(&crowded)
                 .filter(|(_, &c)| !c)
                 .map(|(a, _)| a.partial)
+                .chain(partners.iter().map(|&(_, q)| q))
                 .collect();
             partials::refine(rec, &mut analysis, &chosen, planner);
         }
+        for &(keep, absorbed) in &partners {
+            partials::merge_pair(&mut analysis.partials, keep, absorbed);
+        }
         let parts = &analysis.partials;
-        let obs: Vec<Observation> = m
+        let mut obs: Vec<Observation> = m
             .assignments
             .iter()
             .map(|a| Observation {
@@ -398,11 +573,15 @@ pub fn measure_with(
                 mode: lines[a.line].labels[0],
             })
             .collect();
-        let isolated: Vec<usize> = (0..obs.len()).filter(|&i| !crowded[i]).collect();
+        // Modes the calibration has no factor for are never fitted.
+        let uncal: Vec<bool> = obs.iter().map(|o| uncalibrated.contains(&o.mode)).collect();
+        let isolated: Vec<usize> = (0..obs.len())
+            .filter(|&i| !crowded[i] && !uncal[i])
+            .collect();
         let fit_idx: Vec<usize> = if isolated.len() >= MIN_ISOLATED_MODES {
             isolated
         } else {
-            (0..obs.len()).collect()
+            (0..obs.len()).filter(|&i| !uncal[i]).collect()
         };
         let fit_obs: Vec<Observation> = fit_idx.iter().map(|&i| obs[i].clone()).collect();
         fit_result = match (opts.model, panel.shape) {
@@ -420,6 +599,23 @@ pub fn measure_with(
                     })
                     .collect();
                 plate = crate::plate::fit(&pairs, panel.areal_density.map(|s| s.0));
+                // Young's modulus where thickness and ν are given; D's
+                // uncertainty includes σ's (D = σ·(D/σ)).
+                if let (Some(pf), Some(mat), Some(s)) =
+                    (plate.as_mut(), panel.plate_material, panel.areal_density)
+                {
+                    let q = pf.d_over_sigma;
+                    let u_rel_sigma = panel.areal_density_u.map(|u| u.0 / s.0).unwrap_or(0.0);
+                    let d = Estimate {
+                        value: s.0 * q.value,
+                        standard_uncertainty: (s.0 * q.value).abs()
+                            * ((q.standard_uncertainty / q.value).powi(2) + u_rel_sigma.powi(2))
+                                .sqrt(),
+                    };
+                    if d.value > 0.0 {
+                        pf.youngs_modulus = Some(crate::plate::youngs_modulus(d, &mat));
+                    }
+                }
                 match &plate {
                     Some(pf) => fit::fit_isotropic(&fit_obs).map(|mut f| {
                         f.model = FitModel::Stiff;
@@ -447,14 +643,52 @@ pub fn measure_with(
             }
             _ => fit::fit_isotropic(&fit_obs),
         };
+        // What the kept modes can determine; refuse what they cannot.
+        if let Some(f) = &fit_result {
+            let kept: Vec<Observation> = (0..fit_obs.len())
+                .filter(|i| !f.outliers.contains(i))
+                .map(|i| fit_obs[i].clone())
+                .collect();
+            let id = crate::identifiability::for_fit(opts.model, &kept, f);
+            if let Some(why) = id.refusal() {
+                return Err(TonusError::NotIdentifiable(format!(
+                    "{}: {why}",
+                    rec.path.display()
+                )));
+            }
+            identifiability = Some(id);
+        }
         // Residuals for every assignment, outliers in its numbering.
         if let Some(f) = fit_result.as_mut() {
             if opts.model == FitModel::AirLoaded {
                 f.model = FitModel::AirLoaded;
             }
-            if let (FitModel::Biaxial, Some((p, cov)), Shape::Rectangle { width, height }) =
+            if let (FitModel::Biaxial, Some((mut p, mut cov)), Shape::Rectangle { width, height }) =
                 (opts.model, f.two_term, panel.shape)
             {
+                // Axis tie-break: the swap (m,n) → (n,m) with A ↔ B fits the
+                // frequencies equally; the levels at the tap and pickup
+                // points may tell the two apart.
+                let levels: Vec<((u32, u32), f64)> = fit_idx
+                    .iter()
+                    .enumerate()
+                    .filter(|(k, _)| !f.outliers.contains(k))
+                    .map(|(_, &i)| (obs[i].mode, parts[m.assignments[i].partial].level_db))
+                    .collect();
+                let axis = axis_tie_break(&levels, panel);
+                if axis.swapped_from_matcher {
+                    p = [p[1], p[0]];
+                    cov = [cov[2], cov[1], cov[0]];
+                    f.two_term = Some((p, cov));
+                    for o in obs.iter_mut() {
+                        o.mode = (o.mode.1, o.mode.0);
+                    }
+                    for l in lines.iter_mut() {
+                        for lab in l.labels.iter_mut() {
+                            *lab = (lab.1, lab.0);
+                        }
+                    }
+                }
                 let b = crate::biaxial::from_two_term(p, cov, width.0, height.0, None);
                 f.model = FitModel::Biaxial;
                 f.effective_height_m = None;
@@ -473,13 +707,15 @@ pub fn measure_with(
                     value: c2.sqrt(),
                     standard_uncertainty: 0.5 * u_c2 / c2.sqrt(),
                 };
-                biaxial = Some(crate::biaxial::from_two_term(
+                let mut full = crate::biaxial::from_two_term(
                     p,
                     cov,
                     width.0,
                     height.0,
                     panel.areal_density.map(|s| s.0),
-                ));
+                );
+                full.axis = Some(axis);
+                biaxial = Some(full);
             }
             let fr: &FitResult = f;
             f.residuals_cents = obs
@@ -515,7 +751,9 @@ pub fn measure_with(
                     degeneracy: line.degeneracy,
                     pair: p.pair,
                     outlier: f.outliers.contains(&i),
-                    crowded: f.left_out_crowded.contains(&i),
+                    crowded: f.left_out_crowded.contains(&i)
+                        && !uncalibrated.contains(&line.labels[0]),
+                    uncalibrated: uncalibrated.contains(&line.labels[0]),
                     alternatives: a
                         .alternatives
                         .iter()
@@ -554,6 +792,16 @@ pub fn measure_with(
                 }
             }
         }
+        let not_calibrated: Vec<String> = modes
+            .iter()
+            .filter(|r| r.uncalibrated)
+            .map(|r| r.labels.clone())
+            .collect();
+        if !not_calibrated.is_empty() {
+            warnings.push(Warning::NotCalibrated {
+                labels: not_calibrated,
+            });
+        }
         unmatched = m.unmatched.clone();
         if let Some((c_rival, _, n_rival)) = m.rival {
             warnings.push(Warning::Ambiguous {
@@ -586,15 +834,32 @@ pub fn measure_with(
         }
         None => (None, None),
     };
+    let mut calibration_term = None;
     let budget = match (&fit_result, tension, panel.areal_density) {
         (Some(f), Some(t), Some(s))
             if matches!(f.model, FitModel::Isotropic | FitModel::AirLoaded) =>
         {
             let used: Vec<usize> = (0..modes.len())
-                .filter(|&i| !modes[i].outlier && !modes[i].crowded)
+                .filter(|&i| !modes[i].outlier && !modes[i].crowded && !modes[i].uncalibrated)
                 .collect();
-            let freqs: Vec<f64> = used.iter().map(|&i| modes[i].measured_hz).collect();
             let labels: Vec<(u32, u32)> = used.iter().map(|&i| (modes[i].m, modes[i].n)).collect();
+            // With a calibration the budget sees f/r against the ideal lines.
+            let freqs: Vec<f64> = used
+                .iter()
+                .map(|&i| {
+                    let r = opts
+                        .calibration
+                        .as_ref()
+                        .and_then(|c| c.calibration.factor(modes[i].m, modes[i].n))
+                        .map(|f| f.factor)
+                        .unwrap_or(1.0);
+                    modes[i].measured_hz / r
+                })
+                .collect();
+            calibration_term = opts
+                .calibration
+                .as_ref()
+                .map(|c| c.calibration.term(&labels));
             Some(crate::budget::budget(&crate::budget::BudgetInputs {
                 shape: panel.shape,
                 sigma: s.0,
@@ -604,6 +869,7 @@ pub fn measure_with(
                 frequencies_hz: &freqs,
                 modes: &labels,
                 u_fit: t.standard_uncertainty,
+                calibration: calibration_term,
             }))
         }
         _ => None,
@@ -625,8 +891,15 @@ pub fn measure_with(
         &warnings,
         rec.clipped_fraction,
     );
+    let not_calibrated_rows: Vec<String> = modes
+        .iter()
+        .filter(|r| r.uncalibrated)
+        .map(|r| r.labels.clone())
+        .collect();
+    let evenness = evenness_of(panel, &modes);
     Ok(Measurement {
         panel: panel.clone(),
+        evenness,
         analysis,
         lines,
         matching,
@@ -643,5 +916,48 @@ pub fn measure_with(
         plate,
         taps: None,
         duration_s: rec.duration_s(),
+        identifiability,
+        calibration: opts
+            .calibration
+            .as_ref()
+            .map(|c| crate::calibration::Applied {
+                file: c.path.display().to_string(),
+                created: c.calibration.created.clone(),
+                reference_tension_n_per_m: c.calibration.reference_tension_n_per_m,
+                reference_tension_u_n_per_m: c.calibration.reference_tension_u_n_per_m,
+                term: calibration_term,
+                not_calibrated: not_calibrated_rows,
+            }),
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Levels of a square tapped at x = Lx/2 but labelled the swapped way
+    /// ((2,1) for a partial that is really (1,2)): the tie-break swaps.
+    #[test]
+    fn tie_break_swaps_a_wrong_labelling() {
+        let spec = crate::panel::PanelSpec {
+            width: Some("400mm".into()),
+            height: Some("400mm".into()),
+            tap_at: Some("0.5,0.31".into()),
+            ..Default::default()
+        };
+        let panel = Panel::from_spec(&spec).unwrap();
+        let tap = panel.tap.unwrap();
+        let levels: Vec<((u32, u32), f64)> = [(1, 1), (1, 2), (3, 1), (3, 2), (1, 3)]
+            .iter()
+            .map(|&(m, n)| {
+                let c = panel.shape.mode_shape(m, n, tap).abs();
+                // Reported with the swapped labels.
+                ((n, m), 20.0 * c.log10() - 30.0)
+            })
+            .collect();
+        let ev = axis_tie_break(&levels, &panel);
+        assert!(ev.swapped_from_matcher);
+        assert_eq!(ev.verdict, crate::biaxial::AxisVerdict::Determined);
+        assert!(ev.log10_likelihood_ratio > crate::biaxial::DECISIVE_LOG10_LR);
+    }
 }

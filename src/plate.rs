@@ -47,6 +47,31 @@ pub struct PlateFit {
     pub rms_residual_cents: f64,
     /// Gauss–Newton iterations.
     pub iterations: usize,
+    /// Young's modulus E, Pa, where thickness and Poisson's ratio are
+    /// given ([`youngs_modulus`]).
+    pub youngs_modulus: Option<Estimate>,
+}
+
+/// Young's modulus from the bending stiffness of a thin plate:
+/// E = 12·D·(1 − ν²)/h³ (D = E·h³/(12(1 − ν²)); S. Timoshenko and
+/// S. Woinowsky-Krieger, "Theory of Plates and Shells", 2nd ed., 1959,
+/// §4), with D in N·m, h the thickness in m, ν Poisson's ratio, E in Pa.
+/// E is a product of powers of D, h and (1 − ν²), so the law of
+/// propagation of uncertainty in relative form (GUM §5.1.6) gives
+/// (u_E/E)² = (u_D/D)² + (3·u_h/h)² + (2ν·u_ν/(1 − ν²))², the inputs
+/// taken as uncorrelated.
+pub fn youngs_modulus(d: Estimate, m: &crate::panel::PlateMaterial) -> Estimate {
+    let h = m.thickness_m;
+    let nu = m.poisson_ratio;
+    let e = 12.0 * d.value * (1.0 - nu * nu) / h.powi(3);
+    let rel = ((d.standard_uncertainty / d.value).powi(2)
+        + (3.0 * m.thickness_u_m / h).powi(2)
+        + (2.0 * nu * m.poisson_ratio_u / (1.0 - nu * nu)).powi(2))
+    .sqrt();
+    Estimate {
+        value: e,
+        standard_uncertainty: e.abs() * rel,
+    }
 }
 
 /// Fits T/σ and D/σ to (frequency Hz, k² 1/m²) pairs by least squares in
@@ -140,6 +165,7 @@ pub fn fit(obs: &[(f64, f64)], sigma: Option<f64>) -> Option<PlateFit> {
         residuals_cents: resid.iter().map(|r| r * CENTS_PER_LN).collect(),
         rms_residual_cents: rms,
         iterations,
+        youngs_modulus: None,
     })
 }
 
@@ -186,5 +212,29 @@ mod tests {
         assert!((de.value / d - 1.0).abs() < 0.02, "{de:?}");
         assert!((te.value - t).abs() < 3.0 * te.standard_uncertainty);
         assert!((de.value - d).abs() < 3.0 * de.standard_uncertainty);
+    }
+
+    /// E = 12·D·(1 − ν²)/h³: a steel sheet of E = 200 GPa, ν = 0.3,
+    /// h = 1 mm has D = 200e9·1e-9/(12·0.91) = 18.315 N·m; back to E, and
+    /// the relative uncertainty adds 3·u_h/h in quadrature.
+    #[test]
+    fn youngs_modulus_round_trip() {
+        let d = 200e9 * 1e-9 / (12.0 * 0.91);
+        let mat = crate::panel::PlateMaterial {
+            thickness_m: 1e-3,
+            thickness_u_m: 1e-5,
+            poisson_ratio: 0.3,
+            poisson_ratio_u: 0.0,
+        };
+        let e = youngs_modulus(
+            Estimate {
+                value: d,
+                standard_uncertainty: 0.02 * d,
+            },
+            &mat,
+        );
+        assert!((e.value / 200e9 - 1.0).abs() < 1e-12);
+        let rel = (0.02f64.powi(2) + 0.03f64.powi(2)).sqrt();
+        assert!((e.standard_uncertainty / e.value - rel).abs() < 1e-12);
     }
 }

@@ -17,6 +17,16 @@
 //! Damping: T60(f) = T60₁ · √(f₁/f), with f₁ the fundamental — a smooth
 //! rise of loss with frequency chosen for realism, not from a source.
 //!
+//! Uneven tension on a circle (`tension_skew` = ε, uniform biaxial stress
+//! Txx = T(1 + ε), Tyy = T(1 − ε)): each (1, n) pair sounds as two
+//! partials, the cos member (nodal line along y, moving along x) at
+//! f₀·√(1 + ε/2) and the sin member at f₀·√(1 − ε/2) — the first-order
+//! result of [`crate::evenness`], checked against a finite-difference
+//! eigen-solve in `tests/disk_evenness.rs` — with amplitudes
+//! R(tap)R(pickup)·cos θ_tap·cos θ_pickup and ·sin θ_tap·sin θ_pickup
+//! (an unknown pickup angle counts as 1 for both, an unknown tap angle as
+//! 0°). Pairs with m ≥ 2 have no first-order split and stay one partial.
+//!
 //! Noise is white Gaussian from a fixed seed. The SNR is the RMS of the
 //! noiseless tap over its first 100 ms against the noise RMS, in dB.
 
@@ -99,6 +109,10 @@ pub struct SynthConfig {
     /// Bending stiffness D, N·m (rectangle: the simply supported
     /// prestressed plate of [`crate::plate`]).
     pub bending_stiffness: Option<f64>,
+    /// Uniform biaxial stress on a circle: Txx = T(1 + ε), Tyy = T(1 − ε)
+    /// with this ε (x along θ = 0). Each (1, n) pair splits into its cos
+    /// and sin members at f₀·√(1 ± ε/2) ([`crate::evenness`]).
+    pub tension_skew: Option<f64>,
 }
 
 impl SynthConfig {
@@ -126,6 +140,7 @@ impl SynthConfig {
             air_loaded: false,
             tension_y: None,
             bending_stiffness: None,
+            tension_skew: None,
         }
     }
 }
@@ -227,6 +242,35 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
     // (frequency, amplitude, amplitude decay rate 1/τ)
     let mut comps: Vec<(f64, f64, f64)> = Vec::new();
     for line in &lines {
+        if let (Some(eps), Shape::Circle { .. }) = (cfg.tension_skew, cfg.shape) {
+            let (m, nn) = line.labels[0];
+            if m == 1 && line.labels.len() == 1 {
+                let air = if cfg.air_loaded {
+                    crate::airload::loading_factor(line.factor, cfg.areal_density.0)
+                } else {
+                    1.0
+                };
+                let f0 = line.factor * c * air;
+                let radial = |u: f64| cfg.shape.mode_shape(m, nn, Point { u, v: None });
+                let r = radial(cfg.tap.u) * cfg.pickup.map(|p| radial(p.u)).unwrap_or(1.0);
+                let th_t = cfg.tap.v.unwrap_or(0.0).to_radians();
+                let (cp, sp) = match cfg.pickup.and_then(|p| p.v) {
+                    Some(deg) => (deg.to_radians().cos(), deg.to_radians().sin()),
+                    None => (1.0, 1.0),
+                };
+                for (f, amp) in [
+                    (f0 * (1.0 + eps / 2.0).sqrt(), r * th_t.cos() * cp),
+                    (f0 * (1.0 - eps / 2.0).sqrt(), r * th_t.sin() * sp),
+                ] {
+                    let a = amp * half_sine_spectrum(f, cfg.tap_duration_s);
+                    let t60 = cfg.t60_s * (f1 / f).sqrt();
+                    if a.abs() > 1e-6 {
+                        comps.push((f, a, 3.0 * std::f64::consts::LN_10 / t60));
+                    }
+                }
+                continue;
+            }
+        }
         let f = match (cfg.tension_y, cfg.shape) {
             _ if cfg.bending_stiffness.is_some()
                 && matches!(cfg.shape, Shape::Rectangle { .. }) =>

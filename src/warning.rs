@@ -50,6 +50,11 @@ pub enum Warning {
         /// What the trend is.
         detail: String,
     },
+    /// Matched modes that the calibration has no factor for (not fitted).
+    NotCalibrated {
+        /// Their labels.
+        labels: Vec<String>,
+    },
     /// The analysis span was short for the frequency resolution needed.
     ShortSpan {
         /// Span in seconds.
@@ -121,6 +126,11 @@ impl std::fmt::Display for Warning {
             Warning::SystematicResidual { detail } => {
                 write!(f, "systematic residuals: {detail}")
             }
+            Warning::NotCalibrated { labels } => write!(
+                f,
+                "modes {} are not in the calibration and were left out of the fit; add reference recordings that show them",
+                labels.join(", ")
+            ),
             Warning::ShortSpan { span_s } => write!(
                 f,
                 "short analysis span ({:.0} ms): close partials may merge",

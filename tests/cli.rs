@@ -708,3 +708,96 @@ fn four_taps_and_a_mis_hit() {
         );
     }
 }
+
+#[test]
+fn uneven_circle_reads_its_skew_from_the_split_pairs() {
+    // A 14 in head under Txx = T(1+ε), Tyy = T(1−ε) with ε = 2 %, tapped
+    // off the axes so both members of each (1,n) pair sound, 30 dB SNR.
+    let dir = tempfile::tempdir().unwrap();
+    let geo = [
+        "--shape",
+        "circle",
+        "--diameter",
+        "14in",
+        "--areal-density",
+        "0.26kg/m2",
+        "--tap-at",
+        "0.6,30",
+    ];
+    let mut args: Vec<&str> = geo.to_vec();
+    args.extend_from_slice(&[
+        "--tension",
+        "3000N/m",
+        "--tension-skew",
+        "2%",
+        "--snr",
+        "30",
+        "--length",
+        "2s",
+    ]);
+    let wav = synth(dir.path(), "skew.wav", &args);
+    let mut fit_args = vec![wav.to_str().unwrap()];
+    fit_args.extend_from_slice(&geo);
+    let v = fit_json(&fit_args);
+    let e = &v["evenness"];
+    let eps = e["epsilon_pct"].as_f64().expect("evenness reported");
+    assert!((eps - 2.0).abs() < 0.5, "ε {eps} % against 2 %: {e}");
+    assert!(e["pairs_used"].as_u64().unwrap() >= 1, "{e}");
+    // The (1,1) line carries the pair, both members and the splitting.
+    let modes = v["modes"].as_array().unwrap();
+    let m11 = modes
+        .iter()
+        .find(|r| r["m"] == 1 && r["n"] == 1)
+        .expect("(1,1) matched");
+    let pair = &m11["pair"];
+    let split = pair["splitting_hz"].as_f64().expect("(1,1) resolved");
+    // ε/2 of the (1,1) frequency to first order.
+    let f11 = m11["measured_hz"].as_f64().unwrap();
+    assert!((split / f11 - 0.01).abs() < 0.002, "{pair}");
+    assert!(pair["splitting_u_hz"].as_f64().unwrap() > 0.0);
+    // The mean of the pair is the unsplit mode: the tension stays right.
+    check_tension(&v, 3000.0, 0.01);
+}
+
+#[test]
+fn partials_json_carries_uncertainty_bound_and_method() {
+    let dir = tempfile::tempdir().unwrap();
+    let wav = synth(
+        dir.path(),
+        "s.wav",
+        &[
+            "--shape",
+            "rect",
+            "--width",
+            "400mm",
+            "--height",
+            "300mm",
+            "--areal-density",
+            "0.26kg/m2",
+            "--tension",
+            "2500N/m",
+            "--tap-at",
+            "0.31,0.27",
+        ],
+    );
+    let o = tonus(&["partials", wav.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{:?}", text(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let parts = v["partials"].as_array().unwrap();
+    let refined: Vec<_> = parts
+        .iter()
+        .filter(|p| p["method"] == "damped_fit")
+        .collect();
+    assert!(
+        refined.len() * 2 >= parts.len(),
+        "{} of {}",
+        refined.len(),
+        parts.len()
+    );
+    for p in refined {
+        let u = p["frequency_u_hz"].as_f64().unwrap();
+        let c = p["crlb_hz"].as_f64().unwrap();
+        assert!(u > 0.0 && c > 0.0, "{p}");
+        assert!(p["decay_rate_u_db_per_s"].as_f64().is_some(), "{p}");
+    }
+}

@@ -18,9 +18,12 @@
 //! - `fit`: {`modes_used`, `dof`, `iterations`, `stop_reason`, `uncertainty_method`}
 //! - `matching`: {`hypotheses`, `ambiguous`, `rival_wave_speed_m_per_s`}
 //! - `budget` (GUM): {`tension_n_per_m`, `rows`: [{`source`, `estimate`, `standard_uncertainty`, `sensitivity`, `contribution_n_per_m`}], `combined_standard_uncertainty_n_per_m`, `coverage_factor`, `expanded_uncertainty_n_per_m`} or null without areal density
-//! - `biaxial` (model biaxial): {`tension_x`, `tension_y` (N/m, {value, standard_uncertainty}), `tx_over_sigma`, `ty_over_sigma` (m²/s²), `ratio`, `anisotropy_percent`, `correlation`, `swapped` [Tx, Ty] of the relabelled solution} or null
-//! - `plate` (model stiff): {`t_over_sigma` (m²/s²), `d_over_sigma` (m⁴/s²), `tension` (N/m), `bending_stiffness` (N·m), `correlation`, …} or null
+//! - `biaxial` (model biaxial): {`tension_x`, `tension_y` (N/m, {value, standard_uncertainty}), `tx_over_sigma`, `ty_over_sigma` (m²/s²), `ratio`, `anisotropy_percent`, `correlation`, `swapped` [Tx, Ty] of the relabelled solution, `axis` {`verdict` determined/not_determined, `log10_likelihood_ratio`, `swapped_from_matcher`, `modes_used`, `detail`}} or null
+//! - `plate` (model stiff): {`t_over_sigma` (m²/s²), `d_over_sigma` (m⁴/s²), `tension` (N/m), `bending_stiffness` (N·m), `correlation`, `youngs_modulus` (Pa, {value, standard_uncertainty}, with thickness and Poisson's ratio), …} or null
 //! - `taps` (several taps in the file): {`taps`: [{`onset_s`, `value`, `grade`, `modes`, `kept`, `reason`}], `combined` {value, standard_uncertainty}, `repeatability`, `unit`} or null
+//! - `calibration` (with `--calibration`): {`file`, `created`, `reference_tension_n_per_m`, `reference_tension_u_n_per_m`, `term` {`u_rel_reference`, `u_rel_factors`, `modes`}, `not_calibrated` [labels]} or null; modes carry `uncalibrated`
+//! - `evenness`: uneven tension from resolved split pairs (circle, square panel): {`epsilon_pct`, `epsilon_u_pct`, `spread_pct`, `pairs_used`, `birge_ratio`, `per_pair` [{`labels`, `epsilon_pct`, `epsilon_u_pct`}], `higher_order` [{`m`, `n`, `split_pct`, `split_u_pct`, `pattern_order`, `pattern_amplitude_pct`, `significant`}], `skipped`, `method`} or null when no pair was resolved
+//! - `identifiability`: {`parameters` [names, log parameters], `modes`, `rank`, `condition_number` (null if infinite), `singular_values`, `correlation` (matrix), `max_condition`, `identifiable`} or null without a fit
 //! - `warnings`: [{`kind`, `message`, …}]
 //! - `caution`: the safety note.
 //!
@@ -183,6 +186,9 @@ pub fn fit_record(file: &Path, m: &Measurement, unit: TensionUnit) -> Value {
         "taps": serde_json::to_value(&m.taps).unwrap_or(Value::Null),
         "biaxial": serde_json::to_value(&m.biaxial).unwrap_or(Value::Null),
         "plate": serde_json::to_value(&m.plate).unwrap_or(Value::Null),
+        "calibration": serde_json::to_value(&m.calibration).unwrap_or(Value::Null),
+        "identifiability": serde_json::to_value(&m.identifiability).unwrap_or(Value::Null),
+        "evenness": serde_json::to_value(&m.evenness).unwrap_or(Value::Null),
         "warnings": warnings_json(&m.warnings),
         "caution": CAUTION,
     })

@@ -121,6 +121,13 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                         p.correlation
                     );
                 }
+                if let Some(e) = p.youngs_modulus {
+                    let _ = writeln!(
+                        s,
+                        "  Young's modulus E = {}  (E = 12·D·(1 − ν²)/h³)",
+                        pm(e.value / 1e9, e.standard_uncertainty / 1e9, "GPa")
+                    );
+                }
             }
             if let Some(b) = &m.biaxial {
                 let k = unit.newtons_per_meter();
@@ -142,6 +149,19 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                         "%"
                     ),
                     b.correlation
+                );
+                if let Some(a) = &b.axis {
+                    let _ = writeln!(s, "  {}", a.detail);
+                }
+            }
+            if let Some(c) = &m.calibration {
+                let _ = writeln!(
+                    s,
+                    "  calibrated   {} (reference {} ± {} N/m, made {})",
+                    c.file,
+                    crate::units::sig(c.reference_tension_n_per_m, 5),
+                    crate::units::sig(c.reference_tension_u_n_per_m, 3),
+                    c.created
                 );
             }
             let _ = writeln!(
@@ -166,6 +186,49 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                 "fit          {} modes, rms residual {:.2} cents, {}",
                 f.n_used, f.rms_residual_cents, f.uncertainty_method
             );
+            if let Some(e) = &m.evenness {
+                let _ = writeln!(
+                    s,
+                    "evenness     ε = {} (tightest direction {:.2} % above the slackest), from {} split pair(s)",
+                    pm(e.epsilon_pct, e.epsilon_u_pct, "%"),
+                    e.spread_pct,
+                    e.pairs_used
+                );
+                for h in e.higher_order.iter().filter(|h| h.significant) {
+                    let _ = writeln!(
+                        s,
+                        "             ({},{}) pair split {} : a cos({}θ) pattern (lug spacing) in the tension",
+                        h.m,
+                        h.n,
+                        pm(h.split_pct, h.split_u_pct, "%"),
+                        h.pattern_order
+                    );
+                }
+            }
+            if let Some(id) = &m.identifiability {
+                let mut corr = Vec::new();
+                for a in 0..id.parameters.len() {
+                    for b in a + 1..id.parameters.len() {
+                        corr.push(format!(
+                            "fit correlation r({}, {}) = {:.3}",
+                            id.parameters[a], id.parameters[b], id.correlation[a][b]
+                        ));
+                    }
+                }
+                let _ = writeln!(
+                    s,
+                    "identifiable rank {} of {}, condition number {} (limit {:.0e}){}",
+                    id.rank,
+                    id.parameters.len(),
+                    sig(id.condition_number, 3),
+                    id.max_condition,
+                    if corr.is_empty() {
+                        String::new()
+                    } else {
+                        format!(", {}", corr.join(", "))
+                    }
+                );
+            }
         }
         _ => {
             let _ = writeln!(s, "tension      – (no fit)");
@@ -202,6 +265,8 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                 opt(r.t60_s, 3),
                 if r.outlier {
                     "  outlier, not fitted"
+                } else if r.uncalibrated {
+                    "  not in the calibration, not fitted"
                 } else if r.crowded {
                     "  crowded, not fitted"
                 } else {
