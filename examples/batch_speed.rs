@@ -19,6 +19,7 @@
 //!   from `/proc/self/status`, reset before the run by writing 5 to
 //!   `/proc/self/clear_refs`.
 //!
+//! `-- --peaks-only` times inspect without the damped-sinusoid refinement.
 //! `TONUS_BENCH_COUNT=N` changes the 1,000; `TONUS_BENCH_DIR=DIR` keeps
 //! the recordings in DIR (and reuses them), for profiling the binary on
 //! them (`perf record target/release/tonus inspect … DIR`). Rates depend on the load of
@@ -150,6 +151,7 @@ fn run_binary(bin: &Path, spec: &Path, files: &[PathBuf], out: &Path) -> (f64, f
         .arg("--history")
         .arg(out.join("history.sqlite"))
         .arg(&folder)
+        .args(peaks_only().then_some("--peaks-only"))
         .stdout(std::process::Stdio::null())
         .spawn()
         .expect("tonus runs");
@@ -245,6 +247,7 @@ fn main() {
             station: None,
             operator: None,
             progress: false,
+            peaks_only: peaks_only(),
         };
         let t0 = Instant::now();
         let (outcome, timing) =
@@ -289,4 +292,9 @@ fn main() {
             .and_then(|s| s.split_whitespace().next().map(String::from))
             .unwrap_or_else(|| "unknown".into())
     );
+}
+
+/// `-- --peaks-only`: time inspect without the damped-sinusoid refinement.
+fn peaks_only() -> bool {
+    std::env::args().any(|a| a == "--peaks-only")
 }

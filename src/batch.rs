@@ -85,6 +85,9 @@ pub struct InspectOptions {
     pub operator: Option<String>,
     /// Show a progress bar, when standard error is a terminal.
     pub progress: bool,
+    /// FFT peaks only: skip the damped-sinusoid refinement (about half the
+    /// time per recording; no frequency uncertainties or split pairs).
+    pub peaks_only: bool,
 }
 
 /// How the watch mode polls and when it stops.
@@ -204,7 +207,10 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
         let panel = spec.panel();
         let fit_opts = pipeline::FitOptions {
             model: spec.model.fit_model(),
-            analysis: Default::default(),
+            analysis: crate::partials::AnalysisConfig {
+                refine: !opts.peaks_only,
+                ..Default::default()
+            },
             calibration: None,
         };
         let m =

@@ -210,6 +210,10 @@ pub enum Command {
         /// Operator name for the record.
         #[arg(long)]
         operator: Option<String>,
+        /// FFT peaks only: skip the damped-sinusoid refinement (about half
+        /// the time per recording; no frequency uncertainties or split pairs).
+        #[arg(long)]
+        peaks_only: bool,
     },
     /// List or export the decision history.
     History {
@@ -308,6 +312,10 @@ pub struct InputArgs {
     /// Highest frequency searched, e.g. 5kHz [default: 95 % of Nyquist].
     #[arg(long)]
     pub max_frequency: Option<String>,
+    /// FFT peaks only: skip the damped-sinusoid refinement (about half the
+    /// time; no frequency uncertainties or split pairs).
+    #[arg(long)]
+    pub peaks_only: bool,
 }
 
 impl PanelArgs {
@@ -372,7 +380,10 @@ impl InputArgs {
     /// # Errors
     /// Malformed frequency or SNR.
     pub fn analysis(&self) -> Result<AnalysisConfig> {
-        let mut cfg = AnalysisConfig::default();
+        let mut cfg = AnalysisConfig {
+            refine: !self.peaks_only,
+            ..AnalysisConfig::default()
+        };
         if let Some(s) = self.min_snr {
             if !(0.0..=100.0).contains(&s) {
                 return Err(TonusError::OutOfRange {

@@ -707,7 +707,17 @@ impl SpanAnalyser {
         let mut buf = vec![C64::new(0.0, 0.0); q];
         let mut gain_sq = 0.0;
         let half = (q / 2) as i64;
+        // The delay ramp e^(2πi·j·delay/N) by rotation (renormalised, so
+        // rounding cannot build up), not by a cosine and sine per bin.
+        let turn = 2.0 * PI * delay / nf;
+        let step = C64::from_polar(1.0, turn);
+        let mut ramp = C64::from_polar(1.0, turn * (-half) as f64);
         for j in -half..half {
+            let this_ramp = ramp;
+            ramp *= step;
+            if j % 64 == 0 {
+                ramp /= ramp.norm();
+            }
             let f = (j as f64 * bin_hz).abs();
             let w = if f <= flat_hw {
                 1.0
@@ -721,8 +731,7 @@ impl SpanAnalyser {
                 continue;
             }
             gain_sq += w * w;
-            let ramp = C64::from_polar(1.0, 2.0 * PI * j as f64 * delay / nf);
-            buf[j.rem_euclid(q as i64) as usize] = self.bin(kc + j) * ramp * (w / nf);
+            buf[j.rem_euclid(q as i64) as usize] = self.bin(kc + j) * this_ramp * (w / nf);
         }
         let ifft = self.planner.plan_fft_inverse(q);
         ifft.process(&mut buf);
@@ -1012,8 +1021,11 @@ impl FitProblem {
         let mut w = Vec::new();
         let mut t = Vec::new();
         let mut data = Vec::new();
+        let step = C64::from_polar(1.0, -2.0 * PI / nf);
+        let mut wk = C64::from_polar(1.0, -2.0 * PI * klo as f64 / nf);
         for k in klo..=khi {
-            w.push(C64::from_polar(1.0, -2.0 * PI * k as f64 / nf));
+            w.push(wk);
+            wk *= step;
             t.push((k - kc) as f64 / half.max(1.0));
             data.push(an.bin(k));
         }

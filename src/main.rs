@@ -151,6 +151,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             no_history,
             station,
             operator,
+            peaks_only,
         } => {
             let spec = tonus::spec::Spec::from_file(&spec)?;
             let opts = tonus::batch::InspectOptions {
@@ -159,6 +160,7 @@ fn run(cli: Cli) -> Result<Outcome> {
                 station,
                 operator,
                 progress: true,
+                peaks_only,
             };
             match watch {
                 Some(dir) => tonus::batch::watch(
