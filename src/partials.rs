@@ -286,7 +286,13 @@ pub fn analyse_with(
     };
     if cfg.refine {
         let all: Vec<usize> = (0..analysis.partials.len()).collect();
-        refine(rec, &mut analysis, &all, planner);
+        refine(
+            rec,
+            &mut analysis,
+            &all,
+            crate::estimator::MAX_PENCIL_SAMPLES,
+            planner,
+        );
     }
     Ok(analysis)
 }
@@ -535,6 +541,11 @@ fn measure_decays(
     }
 }
 
+/// Pencil samples per band when `fit` refines its modes: half the
+/// estimator's default, for speed (a fit has many modes and is run on
+/// every panel of a batch); `tonus partials` uses the full
+/// [`crate::estimator::MAX_PENCIL_SAMPLES`].
+pub const FIT_PENCIL_SAMPLES: usize = 48;
 /// Widest band searched around an FFT peak by the estimator, Hz.
 pub const REFINE_HALF_WIDTH_HZ: f64 = 20.0;
 /// A band reaches at most this fraction of the way to the next peak, so
@@ -542,10 +553,10 @@ pub const REFINE_HALF_WIDTH_HZ: f64 = 20.0;
 pub const REFINE_NEIGHBOUR_FRACTION: f64 = 0.45;
 /// Components per band: a single partial or a split pair.
 pub const REFINE_MAX_ORDER: usize = 2;
-/// The strongest component of a band may lie at most this many FFT
-/// resolution bins (1/span) from the peak; farther, the fit has locked
-/// onto something else and the FFT value stands.
-pub const REFINE_MAX_SHIFT_BINS: f64 = 1.5;
+/// The band's components (their power-weighted centre) may lie at most
+/// this many FFT resolution bins (1/span) from the peak; farther, the fit
+/// has been pulled by something else and the FFT value stands.
+pub const REFINE_MAX_SHIFT_BINS: f64 = 0.25;
 
 /// dB per neper: a level decay rate in dB/s is 20/ln 10 times the
 /// amplitude decay rate α in 1/s.
@@ -563,6 +574,7 @@ pub fn refine(
     rec: &Recording,
     analysis: &mut PartialAnalysis,
     which: &[usize],
+    pencil_samples: usize,
     planner: &mut RealFftPlanner<f64>,
 ) {
     use crate::estimator::{BandConfig, SpanAnalyser};
@@ -573,6 +585,7 @@ pub fn refine(
     let span = &rec.samples[analysis.tap.onset_sample..analysis.tap.end_sample];
     let spec = &analysis.spectrum;
     let mut analyser = SpanAnalyser::new_with(span, sr, 0.0, planner);
+    analyser.set_pencil_samples(pencil_samples);
     let resolution_hz = sr / analyser.samples_used().max(1) as f64;
     // Every peak bounds its neighbours' bands, hum lines included.
     let mut peaks: Vec<f64> = analysis
@@ -631,14 +644,25 @@ fn apply_fit(
         .iter()
         .filter(|c| c.frequency_u_hz.is_finite() && c.decay_rate_per_s.is_finite())
         .collect();
-    // The strongest component must be the FFT peak itself; a second one
-    // anywhere in the band makes a pair.
-    let locked = usable
+    // The components must be the FFT peak itself: their power-weighted
+    // centre (where the peak of an unresolved pair sits), or the
+    // strongest of them, within a quarter of a resolution bin of it. Farther, the fit has been pulled by a
+    // neighbour the peak picker did not separate, and the FFT value is
+    // the better one (measured on synthetic panels with crowded modes).
+    let power: f64 = usable.iter().map(|c| c.amplitude * c.amplitude).sum();
+    let centre = usable
+        .iter()
+        .map(|c| c.amplitude * c.amplitude * c.frequency_hz)
+        .sum::<f64>()
+        / power.max(1e-300);
+    let strongest = usable
         .iter()
         .max_by(|a, b| a.amplitude.total_cmp(&b.amplitude))
-        .is_some_and(|c| {
-            (c.frequency_hz - p.frequency_hz).abs() <= REFINE_MAX_SHIFT_BINS * resolution_hz
-        });
+        .map(|c| c.frequency_hz);
+    let close = |f: f64| (f - p.frequency_hz).abs() <= REFINE_MAX_SHIFT_BINS * resolution_hz;
+    // Either the pair's centre is the peak (a pair the peak picker saw as
+    // one) or its strongest member is (the peak of one member).
+    let locked = !usable.is_empty() && (close(centre) || strongest.is_some_and(close));
     let near: Vec<_> = if locked { usable } else { Vec::new() };
     let member = |c: &crate::estimator::DampedComponent| PairMember {
         frequency_hz: c.frequency_hz,

@@ -558,10 +558,36 @@ pub fn measure_with(
                 .map(|(a, _)| a.partial)
                 .chain(partners.iter().map(|&(_, q)| q))
                 .collect();
-            partials::refine(rec, &mut analysis, &chosen, planner);
+            partials::refine(
+                rec,
+                &mut analysis,
+                &chosen,
+                partials::FIT_PENCIL_SAMPLES,
+                planner,
+            );
         }
         for &(keep, absorbed) in &partners {
             partials::merge_pair(&mut analysis.partials, keep, absorbed);
+        }
+        // A pair on a line of one mode is two modes (or a beating) in one
+        // peak, not a split degenerate mode: its mean belongs to neither,
+        // so the member nearer the line stands for the mode.
+        for asg in &m.assignments {
+            let line = &lines[asg.line];
+            let p = &mut analysis.partials[asg.partial];
+            if let (1, Some(pair)) = (line.degeneracy, p.pair) {
+                let f_line = c0 * line.factor;
+                let near = if (pair.lower.frequency_hz - f_line).abs()
+                    <= (pair.upper.frequency_hz - f_line).abs()
+                {
+                    pair.lower
+                } else {
+                    pair.upper
+                };
+                p.frequency_hz = near.frequency_hz;
+                p.frequency_u_hz = Some(near.frequency_u_hz);
+                p.crlb_hz = Some(near.crlb_hz);
+            }
         }
         let parts = &analysis.partials;
         let mut obs: Vec<Observation> = m

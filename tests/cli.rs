@@ -788,8 +788,10 @@ fn partials_json_carries_uncertainty_bound_and_method() {
         .iter()
         .filter(|p| p["method"] == "damped_fit")
         .collect();
+    // Peaks pulled by a neighbour the picker did not separate keep the
+    // FFT value (partials::REFINE_MAX_SHIFT_BINS); the rest are refined.
     assert!(
-        refined.len() * 2 >= parts.len(),
+        refined.len() >= 8 && refined.len() * 4 >= parts.len(),
         "{} of {}",
         refined.len(),
         parts.len()
