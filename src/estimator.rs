@@ -1175,6 +1175,7 @@ impl FitProblem {
         let mut stop = StopReason::MaxIterations;
         let (mut r, _) = self.evaluate(&theta, nfree, fixed, false);
         let mut cost = Self::cost(&r);
+        let dof = ((2 * nb) as f64 - np as f64).max(1.0);
         while iterations < MAX_ITERATIONS {
             iterations += 1;
             let (_, j) = self.evaluate(&theta, nfree, fixed, true);
@@ -1190,14 +1191,14 @@ impl FitProblem {
                         let (rt, _) = self.evaluate(&trial, nfree, fixed, false);
                         let ct = Self::cost(&rt);
                         if ct <= cost {
-                            accepted = Some((trial, rt, ct, step));
+                            accepted = Some((trial, rt, ct));
                             break;
                         }
                     }
                 }
                 mu *= 4.0;
             }
-            let Some((trial, rt, ct, step)) = accepted else {
+            let Some((trial, rt, ct)) = accepted else {
                 stop = StopReason::NoProgress;
                 break;
             };
@@ -1213,11 +1214,9 @@ impl FitProblem {
             // inverse is needed to test it.
             // Where the model misfits (reduced χ² above 1) the standard
             // errors scale with it, and so does the tolerance.
-            let dof = ((2 * nb) as f64 - np as f64).max(1.0);
             let misfit = (cost / self.bin_var / dof).max(1.0);
             let small =
                 (old - cost) / self.bin_var <= STEP_TOLERANCE_SE * STEP_TOLERANCE_SE * misfit;
-            let _ = &step;
             if small || nfree == 0 {
                 stop = StopReason::Converged;
                 break;

@@ -682,15 +682,12 @@ fn apply_fit(
             p.method = FrequencyMethod::DampedFit;
         }
         [a, b] => {
-            p.frequency_hz = 0.5 * (a.frequency_hz + b.frequency_hz);
-            p.frequency_u_hz = Some(0.5 * a.frequency_u_hz.hypot(b.frequency_u_hz));
-            p.crlb_hz = Some(0.5 * a.crlb_hz.hypot(b.crlb_hz));
+            set_pair(p, member(a), member(b));
             // The pair's decay: the stronger member's.
             let strong = if a.amplitude >= b.amplitude { a } else { b };
             set_decay(p, strong.decay_rate_per_s, strong.decay_rate_u_per_s);
             p.amplitude = Some(a.amplitude.hypot(b.amplitude));
             p.method = FrequencyMethod::DampedFit;
-            p.pair = Some(SplitPair::new(member(a), member(b)));
         }
         _ => {}
     }
@@ -717,26 +714,28 @@ pub fn merge_pair(partials: &mut [Partial], keep: usize, absorbed: usize) {
             .map(|x| 20.0 * x.max(1e-300).log10())
             .unwrap_or(p.level_db),
     };
-    let (lo, hi) = if a.frequency_hz <= b.frequency_hz {
-        (member(&a), member(&b))
-    } else {
-        (member(&b), member(&a))
-    };
     let p = &mut partials[keep];
-    p.frequency_hz = 0.5 * (a.frequency_hz + b.frequency_hz);
-    p.frequency_u_hz = match (a.frequency_u_hz, b.frequency_u_hz) {
-        (Some(x), Some(y)) => Some(0.5 * x.hypot(y)),
-        _ => None,
-    };
-    p.crlb_hz = match (a.crlb_hz, b.crlb_hz) {
-        (Some(x), Some(y)) => Some(0.5 * x.hypot(y)),
-        _ => None,
-    };
+    set_pair(p, member(&a), member(&b));
     p.level_db = 10.0 * (10f64.powf(a.level_db / 10.0) + 10f64.powf(b.level_db / 10.0)).log10();
     p.amplitude = match (a.amplitude, b.amplitude) {
         (Some(x), Some(y)) => Some(x.hypot(y)),
         _ => None,
     };
+}
+
+/// Makes `p` the split pair of two members (in either order): its
+/// frequency their mean, with the mean's uncertainty and bound (None
+/// where a member has none).
+fn set_pair(p: &mut Partial, a: PairMember, b: PairMember) {
+    let (lo, hi) = if a.frequency_hz <= b.frequency_hz {
+        (a, b)
+    } else {
+        (b, a)
+    };
+    let mean_u = |x: f64, y: f64| Some(0.5 * x.hypot(y)).filter(|u| u.is_finite());
+    p.frequency_hz = 0.5 * (lo.frequency_hz + hi.frequency_hz);
+    p.frequency_u_hz = mean_u(lo.frequency_u_hz, hi.frequency_u_hz);
+    p.crlb_hz = mean_u(lo.crlb_hz, hi.crlb_hz);
     p.pair = Some(SplitPair::new(lo, hi));
 }
 
