@@ -502,12 +502,13 @@ impl Calibration {
         if schema != SCHEMA {
             return Err(format!("schema is '{schema}', expected '{SCHEMA}'"));
         }
-        match t.get("version").and_then(|v| v.as_integer()) {
-            Some(VERSION) => {}
+        match t.get("version") {
+            Some(v) if v.as_integer() == Some(VERSION) => {}
             other => {
+                let found = other.map_or_else(|| "missing".to_string(), |v| v.to_string());
                 return Err(format!(
-                    "version {other:?} is not supported (expected {VERSION})"
-                ))
+                    "version {found} is not supported (expected {VERSION})"
+                ));
             }
         }
         let panel = table("panel")?;
