@@ -172,6 +172,8 @@ fn run_binary(bin: &Path, spec: &Path, files: &[PathBuf], out: &Path) -> (f64, f
 }
 
 fn main() {
+    // As the tonus binary does.
+    tonus::keep_freed_memory();
     let count: usize = std::env::var("TONUS_BENCH_COUNT")
         .ok()
         .and_then(|v| v.parse().ok())

@@ -39,3 +39,20 @@ pub mod tap;
 pub mod taps;
 pub mod units;
 pub mod warning;
+
+/// Keeps freed memory in the process, for a program that analyses many
+/// recordings: by default glibc hands large buffers (every recording's
+/// spectra) back to the kernel and takes them again as fresh zeroed
+/// pages, which cost about a tenth of a batch's time in page faults.
+/// With this, blocks up to 32 MiB come from the heap and the heap is
+/// trimmed only above 128 MiB free. Call it first in `main`, before any
+/// thread is started.
+pub fn keep_freed_memory() {
+    #[cfg(all(target_os = "linux", target_env = "gnu"))]
+    // SAFETY: mallopt only sets allocator parameters and is called
+    // before other threads exist.
+    unsafe {
+        libc::mallopt(libc::M_MMAP_THRESHOLD, 32 << 20);
+        libc::mallopt(libc::M_TRIM_THRESHOLD, 128 << 20);
+    }
+}

@@ -216,6 +216,7 @@ fn print_line(line: &str) {
 }
 
 fn main() -> ExitCode {
+    tonus::keep_freed_memory();
     let cli = Cli::parse();
     match run(cli) {
         Ok(o) => {

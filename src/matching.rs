@@ -146,6 +146,7 @@ pub fn match_modes(
     }
     let ctx = ScoreContext {
         spacing: &spacing,
+        ln_f: partials.iter().map(|p| p.frequency_hz.ln()).collect(),
         ln_factor: lines.iter().map(|l| l.factor.ln()).collect(),
         coupling_prefix,
         band_cents,
@@ -156,8 +157,17 @@ pub fn match_modes(
             .unwrap_or(band_hz.1),
     };
     let mut results: Vec<Matching> = Vec::new();
+    // The refinement depends on the seed only through its first
+    // assignment (when that is not empty): seeds that start alike end
+    // alike and are run once.
+    let mut started: std::collections::HashSet<Vec<(usize, usize)>> = Default::default();
     for c0 in seeds {
-        let m = refine(partials, lines, c0, &ctx);
+        let first = assign_logs(&ctx.ln_f, &ctx.ln_factor, lines, c0.ln());
+        if !first.is_empty() && !started.insert(first.iter().map(|a| (a.partial, a.line)).collect())
+        {
+            continue;
+        }
+        let m = refine(partials, lines, first, c0, &ctx);
         // Keep one result per distinct wave speed (within a cent).
         if let Some(same) = results
             .iter_mut()
@@ -174,6 +184,12 @@ pub fn match_modes(
     results.sort_by(|a, b| b.score.total_cmp(&a.score));
     let mut best = results.first()?.clone();
     best.hypotheses = hypotheses;
+    add_alternatives(
+        &mut best.assignments,
+        &ctx.ln_f,
+        &ctx.ln_factor,
+        best.wave_speed_m_per_s.ln(),
+    );
     best.rival = results
         .iter()
         .skip(1)
@@ -187,9 +203,15 @@ pub fn match_modes(
 }
 
 /// Alternating assignment and re-estimation of c from a seed.
-fn refine(partials: &[Partial], lines: &[ModeLine], c0: f64, ctx: &ScoreContext) -> Matching {
+fn refine(
+    partials: &[Partial],
+    lines: &[ModeLine],
+    assignments: Vec<Assignment>,
+    c0: f64,
+    ctx: &ScoreContext,
+) -> Matching {
     let mut c = c0;
-    let mut assignments = assign(partials, lines, c);
+    let mut assignments = assignments;
     for _ in 0..6 {
         if assignments.is_empty() {
             break;
@@ -197,11 +219,11 @@ fn refine(partials: &[Partial], lines: &[ModeLine], c0: f64, ctx: &ScoreContext)
         // ln c = mean of ln(f/g) over the assignment.
         let mean = assignments
             .iter()
-            .map(|a| (partials[a.partial].frequency_hz / lines[a.line].factor).ln())
+            .map(|a| ctx.ln_f[a.partial] - ctx.ln_factor[a.line])
             .sum::<f64>()
             / assignments.len() as f64;
         let c_new = mean.exp();
-        let next = assign(partials, lines, c_new);
+        let next = assign_logs(&ctx.ln_f, &ctx.ln_factor, lines, mean);
         let same = next.len() == assignments.len()
             && next
                 .iter()
@@ -219,6 +241,8 @@ fn refine(partials: &[Partial], lines: &[ModeLine], c0: f64, ctx: &ScoreContext)
 /// What the score needs besides the hypothesis.
 struct ScoreContext<'a> {
     spacing: &'a [f64],
+    /// ln f of each partial.
+    ln_f: Vec<f64>,
     ln_factor: Vec<f64>,
     coupling_prefix: Vec<f64>,
     band_cents: f64,
@@ -259,72 +283,82 @@ fn line_spacing_cents(lines: &[ModeLine], band_cents: f64) -> Vec<f64> {
 /// Nearest-line assignment at wave speed c. A line takes at most one
 /// partial per physical mode it stands for (a split pair takes two); the
 /// closest partials win.
+/// Nearest-line assignment at wave speed c (alternatives included).
 pub(crate) fn assign(partials: &[Partial], lines: &[ModeLine], c: f64) -> Vec<Assignment> {
-    let mut cands: Vec<Assignment> = Vec::new();
-    for (i, p) in partials.iter().enumerate() {
-        let g = p.frequency_hz / c;
-        let k = lines.partition_point(|l| l.factor < g);
+    let ln_f: Vec<f64> = partials.iter().map(|p| p.frequency_hz.ln()).collect();
+    let ln_g: Vec<f64> = lines.iter().map(|l| l.factor.ln()).collect();
+    let mut out = assign_logs(&ln_f, &ln_g, lines, c.ln());
+    add_alternatives(&mut out, &ln_f, &ln_g, c.ln());
+    out
+}
+
+/// The assignment of [`assign`] without the alternatives, on the natural
+/// logarithms of the partial frequencies and line factors (a residual in
+/// cents is then a difference, with no logarithm per pair).
+fn assign_logs(ln_f: &[f64], ln_g: &[f64], lines: &[ModeLine], ln_c: f64) -> Vec<Assignment> {
+    let mut cands: Vec<Assignment> = Vec::with_capacity(ln_f.len());
+    for (i, &lf) in ln_f.iter().enumerate() {
+        let lg = lf - ln_c;
+        let k = ln_g.partition_point(|&x| x < lg);
         let mut best: Option<(usize, f64)> = None;
-        for (j, line) in lines
+        for (j, &x) in ln_g
             .iter()
             .enumerate()
             .take((k + 1).min(lines.len()))
             .skip(k.saturating_sub(1))
         {
-            let r = cents(p.frequency_hz, c * line.factor);
+            let r = CENTS_PER_LN * (lg - x);
             if best.is_none_or(|(_, br)| r.abs() < br.abs()) {
                 best = Some((j, r));
             }
         }
         if let Some((j, r)) = best {
-            // A line expected silent at the tap point takes a partial only
-            // when it sits very close; otherwise the partial is more likely
-            // spurious.
             let gate = if lines[j].coupling < WEAK_COUPLING {
                 MATCH_SCATTER_CENTS
             } else {
                 MATCH_GATE_CENTS
             };
             if r.abs() <= gate {
-                let mut alternatives = Vec::new();
-                let mut lo = j;
-                while lo > 0
-                    && cents(p.frequency_hz, c * lines[lo - 1].factor).abs() < MATCH_SCATTER_CENTS
-                {
-                    lo -= 1;
-                    alternatives.push(lo);
-                }
-                let mut hi = j + 1;
-                while hi < lines.len()
-                    && cents(p.frequency_hz, c * lines[hi].factor).abs() < MATCH_SCATTER_CENTS
-                {
-                    alternatives.push(hi);
-                    hi += 1;
-                }
                 cands.push(Assignment {
                     partial: i,
                     line: j,
                     residual_cents: r,
-                    alternatives,
+                    alternatives: Vec::new(),
                 });
             }
         }
     }
     cands.sort_by(|a, b| a.residual_cents.abs().total_cmp(&b.residual_cents.abs()));
     let mut used = vec![0usize; lines.len()];
-    let mut out = Vec::new();
+    let mut out = Vec::with_capacity(cands.len());
     for a in cands {
         if used[a.line] < lines[a.line].degeneracy.max(1) {
             used[a.line] += 1;
             out.push(a);
         }
     }
-    out.sort_by(|a, b| {
-        partials[a.partial]
-            .frequency_hz
-            .total_cmp(&partials[b.partial].frequency_hz)
-    });
+    out.sort_by(|a, b| ln_f[a.partial].total_cmp(&ln_f[b.partial]));
     out
+}
+
+/// Fills in each assignment's alternatives: the other lines within the
+/// matching scatter of its partial.
+fn add_alternatives(assignments: &mut [Assignment], ln_f: &[f64], ln_g: &[f64], ln_c: f64) {
+    for a in assignments {
+        let lg = ln_f[a.partial] - ln_c;
+        let near = |j: usize| (CENTS_PER_LN * (lg - ln_g[j])).abs() < MATCH_SCATTER_CENTS;
+        a.alternatives.clear();
+        let mut lo = a.line;
+        while lo > 0 && near(lo - 1) {
+            lo -= 1;
+            a.alternatives.push(lo);
+        }
+        let mut hi = a.line + 1;
+        while hi < ln_g.len() && near(hi) {
+            a.alternatives.push(hi);
+            hi += 1;
+        }
+    }
 }
 
 fn score(
@@ -352,8 +386,8 @@ fn score(
     let spurious = SPURIOUS_FRACTION / ctx.band_cents;
     let reach = SCORE_REACH_SCATTERS * s / CENTS_PER_LN;
     let mut total = 0.0;
-    for p in partials {
-        let lg = p.frequency_hz.ln() - ln_c;
+    for &lf in &ctx.ln_f {
+        let lg = lf - ln_c;
         let mut mode_density = 0.0;
         if weight_sum > 0.0 {
             // Lines beyond SCORE_REACH_SCATTERS·s contribute below e^(−6).

@@ -360,6 +360,8 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
     let min_snr = cfg.min_snr_db.max(false_alarm_snr_db(
         (hi.saturating_sub(lo) / spectrum::ZERO_PAD_FACTOR).max(1),
     ));
+    let snr_factor = 10f64.powf(min_snr / 10.0);
+    let saddles = Saddles::of(pw);
     for k in lo.max(guard)..hi.min(nb - guard) {
         // Local maximum tests on power (monotonic in dB, and cheaper).
         let v = pw[k];
@@ -370,7 +372,7 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
             continue;
         }
         // SNR test on power first: most local maxima are noise.
-        if v < spec.floor_power[k] * 10f64.powf(min_snr / 10.0) {
+        if v < spec.floor_power[k] * snr_factor {
             continue;
         }
         let v = db(k);
@@ -378,7 +380,7 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
         if snr < min_snr {
             continue;
         }
-        let prom = prominence(pw, k);
+        let prom = saddles.prominence_db(pw, k);
         if prom < cfg.min_prominence_db {
             continue;
         }
@@ -423,31 +425,55 @@ pub fn false_alarm_snr_db(n_independent: usize) -> f64 {
     10.0 * ((n_independent as f64 / FALSE_ALARM_PROBABILITY).ln()).log10()
 }
 
-/// Topographic prominence of the peak at `k`, dB: its height over the
-/// higher of the two lowest points between it and the nearest higher
-/// ground on either side (or the spectrum's end). Works on power; the
-/// result is converted to dB.
-fn prominence(db: &[f64], k: usize) -> f64 {
-    let v = db[k];
-    let mut left_min = v;
-    let mut i = k;
-    while i > 0 {
-        i -= 1;
-        if db[i] > v {
-            break;
+/// For every bin, the lowest power between it and the nearest strictly
+/// higher bin on each side (or the spectrum's end): the two saddles of
+/// its topographic prominence. One pass each way with a stack of
+/// still-unbeaten bins, O(n) for the whole spectrum (walking from every
+/// peak to higher ground costs O(n) per peak).
+struct Saddles {
+    left: Vec<f64>,
+    right: Vec<f64>,
+}
+
+impl Saddles {
+    fn of(p: &[f64]) -> Self {
+        Saddles {
+            left: Self::pass(p.iter().copied()),
+            right: {
+                let mut r = Self::pass(p.iter().rev().copied());
+                r.reverse();
+                r
+            },
         }
-        left_min = left_min.min(db[i]);
     }
-    let mut right_min = v;
-    let mut j = k;
-    while j + 1 < db.len() {
-        j += 1;
-        if db[j] > v {
-            break;
+
+    /// Lowest value from each element back to the nearest strictly
+    /// greater one before it (the element itself included).
+    fn pass(values: impl Iterator<Item = f64>) -> Vec<f64> {
+        // (value, lowest value from the previous stack entry up to it)
+        let mut stack: Vec<(f64, f64)> = Vec::new();
+        let mut out = Vec::with_capacity(values.size_hint().0);
+        for v in values {
+            let mut low = v;
+            while let Some(&(top, top_low)) = stack.last() {
+                if top > v {
+                    break;
+                }
+                low = low.min(top_low);
+                stack.pop();
+            }
+            stack.push((v, low));
+            out.push(low);
         }
-        right_min = right_min.min(db[j]);
+        out
     }
-    10.0 * (v / left_min.max(right_min).max(1e-300)).log10()
+
+    /// Topographic prominence of the peak at `k`, dB: its height over the
+    /// higher of the two lowest points between it and the nearest higher
+    /// ground on either side (or the spectrum's end). Works on power.
+    fn prominence_db(&self, p: &[f64], k: usize) -> f64 {
+        10.0 * (p[k] / self.left[k].max(self.right[k]).max(1e-300)).log10()
+    }
 }
 
 /// Measures each partial's decay on a short-time Fourier transform of the
@@ -770,6 +796,39 @@ mod tests {
     use super::*;
     use std::f64::consts::PI;
     use std::path::Path;
+
+    /// The prominence by walking from the peak to higher ground on each
+    /// side, as its definition reads.
+    fn prominence_by_walking(p: &[f64], k: usize) -> f64 {
+        let v = p[k];
+        let left = p[..k]
+            .iter()
+            .rev()
+            .take_while(|&&x| x <= v)
+            .fold(v, |m, &x| m.min(x));
+        let right = p[k + 1..]
+            .iter()
+            .take_while(|&&x| x <= v)
+            .fold(v, |m, &x| m.min(x));
+        10.0 * (v / left.max(right).max(1e-300)).log10()
+    }
+
+    #[test]
+    fn one_pass_saddles_equal_the_walk_from_every_bin() {
+        let mut rng = crate::synth::Rng::new(41);
+        // Ties included: values on a coarse grid.
+        let p: Vec<f64> = (0..2000)
+            .map(|i| 1.0 + (rng.normal().abs() * 4.0).round() + (i % 97) as f64 * 0.01)
+            .collect();
+        let s = Saddles::of(&p);
+        for k in 0..p.len() {
+            assert_eq!(
+                s.prominence_db(&p, k),
+                prominence_by_walking(&p, k),
+                "bin {k}"
+            );
+        }
+    }
 
     fn tap_signal(sr: f64, parts: &[(f64, f64, f64)], len_s: f64) -> Vec<f64> {
         let n = (len_s * sr) as usize;
