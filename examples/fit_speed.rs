@@ -18,6 +18,8 @@ fn median(mut v: Vec<f64>) -> f64 {
 }
 
 fn main() {
+    // As the tonus binary does.
+    tonus::keep_freed_memory();
     let runs: usize = std::env::var("TONUS_BENCH_RUNS")
         .ok()
         .and_then(|v| v.parse().ok())

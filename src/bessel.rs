@@ -59,26 +59,107 @@ pub fn bessel_zero(m: u32, n: u32) -> f64 {
 /// The first zeros of J_m: all below `x_max`, but at least `at_least`.
 pub fn zeros_below(m: u32, x_max: f64, at_least: usize) -> Vec<f64> {
     let mut guard = cache().lock().unwrap_or_else(|e| e.into_inner());
-    let list = guard.entry(m).or_default();
-    while list.len() < at_least || list.last().is_none_or(|&z| z < x_max) {
-        let start = match list.last() {
-            Some(&z) => z + 2.9,
-            // The first zero of J_m lies above m (DLMF 10.21.3 gives
-            // j_{m,1} > m); J_m is positive just above 0 for every m.
-            None => (m as f64).max(1e-3),
-        };
-        let z = next_zero(m, start);
-        list.push(z);
-        if list.len() > 10_000 {
+    let mut out = Vec::new();
+    for k in 0.. {
+        let z = zero_at(&mut guard, m, k);
+        if !(z < x_max || k < at_least) {
             break;
         }
+        out.push(z);
     }
-    list.iter()
-        .copied()
-        .enumerate()
-        .take_while(|&(i, z)| z < x_max || i < at_least)
-        .map(|(_, z)| z)
-        .collect()
+    out
+}
+
+/// The (k+1)-th positive zero of J_m, computed and cached as needed.
+/// Zeros of consecutive orders interlace (DLMF 10.21.2:
+/// j_{m−1,n} < j_{m,n} < j_{m−1,n+1}) and consecutive zeros of one order
+/// are more than 2.9 apart, so for m ≥ 1 the next zero lies above both
+/// j_{m−1,k+1} and j_{m,k} + 2.9; a scan from there in steps of 1 (below
+/// the spacing, so it cannot step over two zeros) brackets it. J_0's
+/// zeros come from the finer scan of [`next_zero`].
+fn zero_at(map: &mut HashMap<u32, Vec<f64>>, m: u32, k: usize) -> f64 {
+    loop {
+        let have = map.get(&m).map_or(0, |l| l.len());
+        if have > k {
+            return map[&m][k];
+        }
+        let previous = map.get(&m).and_then(|l| l.last()).copied();
+        let z = if m == 0 {
+            next_zero(0, previous.map_or(1e-3, |z| z + 2.9))
+        } else {
+            let lower = zero_at(map, m - 1, have);
+            let mut a = previous.map_or(lower, |z| lower.max(z + 2.9));
+            let mut fa = bessel_j(m, a);
+            loop {
+                let b = a + 1.0;
+                let fb = bessel_j(m, b);
+                if fa == 0.0 {
+                    break a;
+                }
+                if fa * fb <= 0.0 {
+                    break bracketed_zero(m, a, b, fa, fb);
+                }
+                a = b;
+                fa = fb;
+            }
+        };
+        map.entry(m).or_default().push(z);
+    }
+}
+
+/// J_m(x) and J_{m−1}(x) (m ≥ 1) from one pass of the trapezoidal rule
+/// of [`bessel_j`]: cos((m−1)τ − x·sin τ) = cos(θ)·cos τ + sin(θ)·sin τ
+/// with θ = mτ − x·sin τ.
+fn bessel_j_and_lower(m: u32, x: f64) -> (f64, f64) {
+    let mf = m as f64;
+    let points = ((mf + x.abs()) / 2.0).ceil() as usize + 24;
+    let h = std::f64::consts::PI / points as f64;
+    let (mut sm, mut sl) = (0.0, 0.0);
+    for i in 0..=points {
+        let tau = i as f64 * h;
+        let (st, ct) = tau.sin_cos();
+        let (sth, cth) = (mf * tau - x * st).sin_cos();
+        let w = if i == 0 || i == points { 0.5 } else { 1.0 };
+        sm += w * cth;
+        sl += w * (cth * ct + sth * st);
+    }
+    (sm * h / std::f64::consts::PI, sl * h / std::f64::consts::PI)
+}
+
+/// The zero of J_m (m ≥ 1) in (a, b), where J_m changes sign once:
+/// Newton's method with J_m′ = J_{m−1} − (m/x)·J_m (DLMF 10.6.2),
+/// started by the secant through the ends and kept inside the bracket
+/// (bisection when a step would leave it).
+fn bracketed_zero(m: u32, mut a: f64, mut b: f64, mut fa: f64, fb: f64) -> f64 {
+    let mut x = if fa != fb {
+        (a - fa * (b - a) / (fb - fa)).clamp(a, b)
+    } else {
+        0.5 * (a + b)
+    };
+    for _ in 0..60 {
+        let (fx, lower) = bessel_j_and_lower(m, x);
+        if fx == 0.0 {
+            return x;
+        }
+        if fa * fx < 0.0 {
+            b = x;
+        } else {
+            a = x;
+            fa = fx;
+        }
+        let d = lower - m as f64 / x * fx;
+        let newton = x - fx / d;
+        let next = if d != 0.0 && newton > a && newton < b {
+            newton
+        } else {
+            0.5 * (a + b)
+        };
+        if (next - x).abs() <= 1e-15 * x.abs() || (b - a) <= 1e-15 * x.abs() {
+            return next;
+        }
+        x = next;
+    }
+    x
 }
 
 /// The first zero of J_m above `start` (no zero lies in [start − 2.9, start)
@@ -122,7 +203,9 @@ fn polish(m: u32, mut a: f64, mut b: f64, mut fa: f64) -> f64 {
             0.5 * (a + b)
         };
         // Converged to the last bits of a double.
-        if (next - x).abs() <= 1e-15 * x.abs() || (b - a) <= 1e-15 * x.abs() {
+        // J carries rounding of about 1e−15 (a sum of ~100 cosines), so
+        // x is known to about 1e−14: stop at a step of 1e−13.
+        if (next - x).abs() <= 1e-13 * x.abs().max(1.0) || (b - a) <= 1e-15 * x.abs() {
             return next;
         }
         x = next;

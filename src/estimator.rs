@@ -93,6 +93,10 @@ pub const MIN_SPAN_SAMPLES: usize = 64;
 /// cost of the one FFT per span grows with it, and a partial still
 /// sounding after that is measured well enough.
 pub const MAX_SPAN_SAMPLES: usize = 1 << 18;
+/// A side of a peak that rises again by this factor in power over its
+/// lowest point (before falling to half power) has met a neighbouring
+/// peak ([`SpanAnalyser`]'s half-power width).
+pub const VALLEY_RISE: f64 = 1.25;
 /// Poles beyond `max_order` the pencil may use for neighbours that fall
 /// inside its window but outside the band.
 pub const EXTRA_PENCIL_ORDER: usize = 4;
@@ -211,13 +215,24 @@ fn fit_with_rejection(
     loop {
         let result = problem.solve(&free, fixed);
         iterations += result.iterations;
-        let worst = result
+        // A component broader than the window is background (which the
+        // baseline models), not a partial: the broadest goes first.
+        let broadest = result
             .free
             .iter()
             .enumerate()
-            .filter(|(_, c)| c.amplitude_z < MIN_AMPLITUDE_Z || c.growth_z > MIN_AMPLITUDE_Z)
-            .min_by(|a, b| a.1.amplitude_z.total_cmp(&b.1.amplitude_z))
+            .filter(|(_, c)| -c.s.re > problem.broad_limit)
+            .min_by(|a, b| a.1.s.re.total_cmp(&b.1.s.re))
             .map(|(i, _)| i);
+        let worst = broadest.or_else(|| {
+            result
+                .free
+                .iter()
+                .enumerate()
+                .filter(|(_, c)| c.amplitude_z < MIN_AMPLITUDE_Z || c.growth_z > MIN_AMPLITUDE_Z)
+                .min_by(|a, b| a.1.amplitude_z.total_cmp(&b.1.amplitude_z))
+                .map(|(i, _)| i)
+        });
         let Some(i) = worst else {
             return (result, rejected, iterations);
         };
@@ -587,11 +602,16 @@ impl SpanAnalyser {
 
     /// Half-width (bins) at half power of the peak at `kp`, each side
     /// interpolated linearly in power and the two sides averaged; a side
-    /// that stays above half power for `limit` bins counts as `limit`.
+    /// that stays above half power for `limit` bins counts as `limit`. A
+    /// side that climbs again to [`VALLEY_RISE`] times its lowest power
+    /// before reaching half power has run into a neighbour's peak: it
+    /// ends at the valley (there the line is at least that narrow, and
+    /// walking on would measure the neighbours, not the line).
     fn half_power_half_width(&self, kp: i64, pmax: f64, limit: i64) -> f64 {
         let half = 0.5 * pmax;
         let side = |dir: i64| -> f64 {
             let mut prev = pmax;
+            let mut low = (0i64, pmax);
             for step in 1..=limit {
                 let k = kp + dir * step;
                 if k < 1 || k > (self.n / 2) as i64 - 1 {
@@ -600,6 +620,11 @@ impl SpanAnalyser {
                 let p = self.bin(k).norm_sqr();
                 if p < half {
                     return (step - 1) as f64 + (prev - half) / (prev - p);
+                }
+                if p < low.1 {
+                    low = (step, p);
+                } else if p > VALLEY_RISE * low.1 {
+                    return low.0.max(1) as f64;
                 }
                 prev = p;
             }
@@ -884,7 +909,14 @@ pub fn matrix_pencil(y: &[C64], max_order: usize, noise_sd: f64) -> Option<Penci
     // Amplitudes: least squares on the Vandermonde matrix V_mi = z_i^m.
     let van = DMatrix::from_fn(m, k, |r, c| poles[c].powu(r as u32));
     let rhs = DVector::from_column_slice(y);
-    let h = van.svd(true, true).solve(&rhs, 1e-12).ok()?;
+    // Normal equations (k×k) where they are well posed; the SVD for
+    // nearly coincident poles.
+    let h = match van.ad_mul(&van).cholesky() {
+        Some(ch) if (0..k).all(|i| ch.l_dirty()[(i, i)].re > 1e-6 * (m as f64).sqrt()) => {
+            ch.solve(&van.ad_mul(&rhs))
+        }
+        _ => van.svd(true, true).solve(&rhs, 1e-12).ok()?,
+    };
     result.amplitudes = h.iter().copied().collect();
     result.poles = poles;
     Some(result)
@@ -1002,10 +1034,16 @@ struct FitProblem {
     /// Baseline abscissa (k − kc)/half-width per bin.
     t: Vec<f64>,
     data: Vec<C64>,
+    /// The data stacked (Re of every bin, then Im).
+    stacked: DVector<f64>,
     /// Noise variance of each of Re X_k and Im X_k: N·σ²/2.
     bin_var: f64,
     /// Number of baseline coefficients (0: no baseline).
     baseline_terms: usize,
+    /// Decay per sample at which a line's half-power half-width α/2π
+    /// reaches the fit window's half-width: a component this broad is
+    /// background, not a partial ([`fit_with_rejection`]).
+    broad_limit: f64,
 }
 
 /// G(s) = Σ_{n<N} (e^s·w)^n = (1 − e^(Ns))/(1 − e^s·w) for w^N = 1, and
@@ -1045,9 +1083,11 @@ impl FitProblem {
             n: nf,
             w,
             t,
+            stacked: stack(&data),
             data,
             bin_var: nf * sigma2 / 2.0,
             baseline_terms: BASELINE_DEGREE + 1,
+            broad_limit: 2.0 * PI * half.max(1.0) / nf,
         }
     }
 
@@ -1145,9 +1185,206 @@ impl FitProblem {
         r.iter().map(|v| v.norm_sqr()).sum()
     }
 
-    /// Levenberg–Marquardt from the given poles; linear parameters start
-    /// at their least-squares values for those poles.
+    /// The fit by variable projection (G. H. Golub and V. Pereyra, "The
+    /// differentiation of pseudo-inverses and nonlinear least squares
+    /// problems whose variables separate", SIAM J. Numer. Anal. 10(2),
+    /// 1973): the model is linear in the amplitudes and the baseline, so
+    /// for given poles these are solved exactly (least squares by QR) and
+    /// Levenberg–Marquardt moves the free poles alone on the projected
+    /// residual P⊥(s)·d, with the Jacobian −P⊥·(∂Φ/∂s)·a of L. Kaufman ("A
+    /// variable projection method for solving separable nonlinear least
+    /// squares problems", BIT 15, 1975). The minimum is that of the full
+    /// problem; it is reached in a few iterations where moving poles and
+    /// amplitudes together crawled along their correlation. The
+    /// covariance then comes from the full Jacobian ([`FitProblem::finish`]).
     fn solve(&mut self, free: &[C64], fixed: &[C64]) -> FitResult {
+        let nfree = free.len();
+        let mut poles = free.to_vec();
+        let Some(mut at) = self.project(&poles, fixed) else {
+            return self.solve_full(free, fixed);
+        };
+        let nb = self.data.len();
+        let np = 2 * nfree + at.lin.len();
+        let dof = ((2 * nb) as f64 - np as f64).max(1.0);
+        let mut mu = 1e-3;
+        let mut iterations = 0;
+        let mut stop = StopReason::Converged;
+        while nfree > 0 && iterations < MAX_ITERATIONS {
+            iterations += 1;
+            let j = &at.jacobian;
+            let a = j.transpose() * j;
+            let g = j.transpose() * &at.resid;
+            let mut accepted = None;
+            while mu < 1e12 {
+                if let Some(step) = solve_damped(&a, &g, mu) {
+                    let trial: Vec<C64> = poles
+                        .iter()
+                        .enumerate()
+                        .map(|(c, s)| s + C64::new(step[2 * c], step[2 * c + 1]))
+                        .collect();
+                    if trial.iter().all(|s| s.re.is_finite() && s.im.is_finite()) {
+                        if let Some(next) = self.project(&trial, fixed) {
+                            if next.cost <= at.cost {
+                                accepted = Some((trial, next));
+                                break;
+                            }
+                        }
+                    }
+                }
+                mu *= 4.0;
+            }
+            let Some((trial, next)) = accepted else {
+                stop = StopReason::NoProgress;
+                break;
+            };
+            mu = (mu / 3.0).max(1e-12);
+            let old = at.cost;
+            poles = trial;
+            at = next;
+            // A component grown broader than the window will be removed
+            // (fit_with_rejection): no use polishing the others first.
+            if poles.iter().any(|s| -s.re > self.broad_limit) {
+                stop = StopReason::NoProgress;
+                break;
+            }
+            // As in the full fit: the drop in χ² bounds the step's length
+            // in standard errors (of the poles, with the amplitudes at
+            // their best values for every pole position).
+            let misfit = (at.cost / self.bin_var / dof).max(1.0);
+            if (old - at.cost) / self.bin_var <= STEP_TOLERANCE_SE * STEP_TOLERANCE_SE * misfit {
+                stop = StopReason::Converged;
+                break;
+            }
+            if old - at.cost <= 1e-15 * old {
+                stop = StopReason::NoProgress;
+                break;
+            }
+            if iterations == MAX_ITERATIONS {
+                stop = StopReason::MaxIterations;
+            }
+        }
+        let mut theta = Vec::with_capacity(np);
+        for s in &poles {
+            theta.push(s.re);
+            theta.push(s.im);
+        }
+        theta.extend(at.lin.iter());
+        self.finish(&theta, nfree, fixed, iterations, stop)
+    }
+
+    /// The least-squares amplitudes and baseline for the given poles, the
+    /// residual they leave and its Kaufman Jacobian in the free poles
+    /// ([`FitProblem::solve`]). None when the linear columns are
+    /// numerically dependent (two poles on top of each other).
+    fn project(&self, free: &[C64], fixed: &[C64]) -> Option<Projection> {
+        let nb = self.data.len();
+        let nfree = free.len();
+        let ncomp = nfree + fixed.len();
+        let nlin = 2 * ncomp + 2 * self.baseline_terms;
+        let rows = 2 * nb;
+        if nlin > rows {
+            return None;
+        }
+        let i_unit = C64::new(0.0, 1.0);
+        let mut phi = DMatrix::<f64>::zeros(rows, nlin);
+        // dG/ds of each free pole and of its image, per bin.
+        let mut dgs: Vec<(Vec<C64>, Vec<C64>)> = Vec::with_capacity(nfree);
+        for c in 0..ncomp {
+            let s = if c < nfree { free[c] } else { fixed[c - nfree] };
+            let es = s.exp();
+            let zn = (s * self.n).exp();
+            let (esc, znc) = (es.conj(), zn.conj());
+            let mut dg = Vec::new();
+            let mut dgi = Vec::new();
+            if c < nfree {
+                dg.reserve(nb);
+                dgi.reserve(nb);
+            }
+            for k in 0..nb {
+                let (g, gi) = if c < nfree {
+                    let (g, d) = geometric(es, zn, self.w[k], self.n);
+                    let (gi, di) = geometric(esc, znc, self.w[k], self.n);
+                    dg.push(d);
+                    dgi.push(di);
+                    (g, gi)
+                } else {
+                    (
+                        geometric_value(es, zn, self.w[k], self.n),
+                        geometric_value(esc, znc, self.w[k], self.n),
+                    )
+                };
+                let u = g + gi;
+                let v = i_unit * (g - gi);
+                phi[(k, 2 * c)] = u.re;
+                phi[(nb + k, 2 * c)] = u.im;
+                phi[(k, 2 * c + 1)] = v.re;
+                phi[(nb + k, 2 * c + 1)] = v.im;
+            }
+            if c < nfree {
+                dgs.push((dg, dgi));
+            }
+        }
+        let eoff = 2 * ncomp;
+        for p in 0..self.baseline_terms {
+            for k in 0..nb {
+                let tp = self.t[k].powi(p as i32);
+                phi[(k, eoff + 2 * p)] = tp;
+                phi[(nb + k, eoff + 2 * p + 1)] = tp;
+            }
+        }
+        // Least squares by the normal equations with the columns scaled
+        // to unit norm (Cholesky of the 2·comps + baseline Gram matrix;
+        // a Householder QR of the tall Φ costs several times as much).
+        let norms: Vec<f64> = phi.column_iter().map(|c| c.norm()).collect();
+        if norms.iter().any(|&v| !(v > 0.0 && v.is_finite())) {
+            return None;
+        }
+        for (j, &v) in norms.iter().enumerate() {
+            phi.column_mut(j).unscale_mut(v);
+        }
+        let gram = phi.tr_mul(&phi);
+        let chol = gram.cholesky()?;
+        // Numerically dependent columns: the factor's smallest pivot.
+        let l = chol.l_dirty();
+        if (0..nlin).any(|i| l[(i, i)] <= 1e-6) {
+            return None;
+        }
+        let d = &self.stacked;
+        let lin_scaled = chol.solve(&phi.tr_mul(d));
+        let resid = d - &phi * &lin_scaled;
+        let cost = resid.norm_squared();
+        let lin = DVector::from_fn(nlin, |j, _| lin_scaled[j] / norms[j]);
+        // Kaufman's Jacobian of the model, P⊥·(∂Φ/∂s)·a, in the sign
+        // convention of the full fit (residual = data − model).
+        let mut jacobian = DMatrix::<f64>::zeros(rows, 2 * nfree);
+        for (c, (dg, dgi)) in dgs.iter().enumerate() {
+            let b = C64::new(lin[2 * c], lin[2 * c + 1]);
+            for k in 0..nb {
+                let d_sigma = b * dg[k] + b.conj() * dgi[k];
+                let d_omega = i_unit * (b * dg[k] - b.conj() * dgi[k]);
+                jacobian[(k, 2 * c)] = d_sigma.re;
+                jacobian[(nb + k, 2 * c)] = d_sigma.im;
+                jacobian[(k, 2 * c + 1)] = d_omega.re;
+                jacobian[(nb + k, 2 * c + 1)] = d_omega.im;
+            }
+        }
+        if nfree > 0 {
+            let coef = chol.solve(&phi.tr_mul(&jacobian));
+            jacobian -= &phi * coef;
+        }
+        Some(Projection {
+            cost,
+            lin,
+            resid,
+            jacobian,
+        })
+    }
+
+    /// Levenberg–Marquardt on all parameters from the given poles, the
+    /// linear ones starting at their least-squares values for those poles:
+    /// the fallback of [`FitProblem::solve`] where the linear columns are
+    /// degenerate at the start.
+    fn solve_full(&mut self, free: &[C64], fixed: &[C64]) -> FitResult {
         let nfree = free.len();
         let ncomp = nfree + fixed.len();
         let np = 2 * nfree + 2 * ncomp + 2 * self.baseline_terms;
@@ -1226,8 +1463,24 @@ impl FitProblem {
                 break;
             }
         }
+        self.finish(&theta, nfree, fixed, iterations, stop)
+    }
+
+    /// The fit's result at the solution θ: the covariance from the full
+    /// Jacobian (poles, amplitudes and baseline together), each free
+    /// component's significance and the baseline's Wald statistic.
+    fn finish(
+        &self,
+        theta: &[f64],
+        nfree: usize,
+        fixed: &[C64],
+        iterations: usize,
+        stop: StopReason,
+    ) -> FitResult {
+        let np = theta.len();
+        let nb = self.data.len();
         // Covariance at the solution.
-        let (r, j) = self.evaluate(&theta, nfree, fixed, true);
+        let (r, j) = self.evaluate(theta, nfree, fixed, true);
         let j = j.expect("asked for");
         let a = j.transpose() * &j;
         let inv = scaled_inverse(&a);
@@ -1276,10 +1529,22 @@ impl FitProblem {
             chi2: Self::cost(&r) / self.bin_var,
             baseline_wald: inv
                 .as_ref()
-                .map(|inv| self.baseline_wald(&theta, inv))
+                .map(|inv| self.baseline_wald(theta, inv))
                 .unwrap_or(f64::INFINITY),
         }
     }
+}
+
+/// One variable-projection evaluation ([`FitProblem::project`]).
+struct Projection {
+    /// Σ residual², the cost of the full fit at these poles.
+    cost: f64,
+    /// Least-squares amplitudes and baseline, in θ's order.
+    lin: DVector<f64>,
+    /// Residual d − Φ·a, stacked (Re, then Im).
+    resid: DVector<f64>,
+    /// Projected Jacobian in the free poles (2·bins × 2·free).
+    jacobian: DMatrix<f64>,
 }
 
 /// Real and imaginary parts stacked, matching the Jacobian's rows.

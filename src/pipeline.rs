@@ -475,9 +475,10 @@ pub fn measure_with(
     });
     // Lines far enough up that the lowest partial may be any of the first
     // few lines: g_max = g(ANCHOR_LINES-th line) · f_hi/f_lo.
-    let probe = panel
-        .shape
-        .lines(panel.shape.fundamental_factor() * 6.0, None, None);
+    // (The factors do not depend on the tap, so the cache serves here.)
+    let g_probe = panel.shape.fundamental_factor() * 6.0;
+    let mut probe = cached_lines(panel, g_probe);
+    probe.retain(|l| l.factor <= g_probe * (1.0 + 1e-12));
     let g_anchor = probe
         .get(matching::ANCHOR_LINES.min(probe.len()) - 1)
         .map(|l| l.factor)
