@@ -329,13 +329,19 @@ fn assign_logs(ln_f: &[f64], ln_g: &[f64], lines: &[ModeLine], ln_c: f64) -> Vec
         }
     }
     cands.sort_by(|a, b| a.residual_cents.abs().total_cmp(&b.residual_cents.abs()));
-    let mut used = vec![0usize; lines.len()];
+    // Lines taken so far and how often (a short list: at most one entry
+    // per partial, where a flag per line would clear thousands of lines
+    // for every hypothesis).
+    let mut used: Vec<(usize, usize)> = Vec::with_capacity(cands.len());
     let mut out = Vec::with_capacity(cands.len());
     for a in cands {
-        if used[a.line] < lines[a.line].degeneracy.max(1) {
-            used[a.line] += 1;
-            out.push(a);
+        let cap = lines[a.line].degeneracy.max(1);
+        match used.iter_mut().find(|(l, _)| *l == a.line) {
+            Some((_, n)) if *n >= cap => continue,
+            Some((_, n)) => *n += 1,
+            None => used.push((a.line, 1)),
         }
+        out.push(a);
     }
     out.sort_by(|a, b| ln_f[a.partial].total_cmp(&ln_f[b.partial]));
     out
@@ -409,10 +415,8 @@ fn score(
         }
         total += (1.0 + (1.0 - SPURIOUS_FRACTION) * mode_density / spurious).ln();
     }
-    let mut matched_line = vec![false; lines.len()];
-    for a in &assignments {
-        matched_line[a.line] = true;
-    }
+    let mut matched_lines: Vec<usize> = assignments.iter().map(|a| a.line).collect();
+    matched_lines.sort_unstable();
     let top = assignments
         .iter()
         .map(|a| partials[a.partial].frequency_hz)
@@ -427,7 +431,10 @@ fn score(
         if f > top * (1.0 + 1e-9) {
             break;
         }
-        if !matched_line[j] && ctx.spacing[j] >= 2.0 * s && l.coupling >= WEAK_COUPLING {
+        if matched_lines.binary_search(&j).is_err()
+            && ctx.spacing[j] >= 2.0 * s
+            && l.coupling >= WEAK_COUPLING
+        {
             missing.push(j);
             if f <= low_top * (1.0 + 1e-9) {
                 total += (1.0 - DETECTION_PROBABILITY * l.coupling).ln();

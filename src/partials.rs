@@ -425,54 +425,99 @@ pub fn false_alarm_snr_db(n_independent: usize) -> f64 {
     10.0 * ((n_independent as f64 / FALSE_ALARM_PROBABILITY).ln()).log10()
 }
 
-/// For every bin, the lowest power between it and the nearest strictly
-/// higher bin on each side (or the spectrum's end): the two saddles of
-/// its topographic prominence. One pass each way with a stack of
-/// still-unbeaten bins, O(n) for the whole spectrum (walking from every
-/// peak to higher ground costs O(n) per peak).
+/// Block summary of a spectrum for topographic prominence: the highest
+/// and lowest power of every [`PROMINENCE_BLOCK`] bins. A walk from a
+/// peak to higher ground then crosses whole blocks whose maximum is not
+/// above the peak in one step each, and goes bin by bin only in the
+/// block where it starts and the one where it stops: O(block + n/block)
+/// per peak instead of O(n), for a summary made once in O(n).
 struct Saddles {
-    left: Vec<f64>,
-    right: Vec<f64>,
+    block_max: Vec<f64>,
+    block_min: Vec<f64>,
 }
+
+/// Bins per block of [`Saddles`].
+const PROMINENCE_BLOCK: usize = 64;
 
 impl Saddles {
     fn of(p: &[f64]) -> Self {
+        let (block_max, block_min) = p
+            .chunks(PROMINENCE_BLOCK)
+            .map(|c| {
+                c.iter()
+                    .fold((f64::NEG_INFINITY, f64::INFINITY), |(hi, lo), &v| {
+                        (hi.max(v), lo.min(v))
+                    })
+            })
+            .unzip();
         Saddles {
-            left: Self::pass(p.iter().copied()),
-            right: {
-                let mut r = Self::pass(p.iter().rev().copied());
-                r.reverse();
-                r
-            },
+            block_max,
+            block_min,
         }
     }
 
-    /// Lowest value from each element back to the nearest strictly
-    /// greater one before it (the element itself included).
-    fn pass(values: impl Iterator<Item = f64>) -> Vec<f64> {
-        // (value, lowest value from the previous stack entry up to it)
-        let mut stack: Vec<(f64, f64)> = Vec::new();
-        let mut out = Vec::with_capacity(values.size_hint().0);
-        for v in values {
-            let mut low = v;
-            while let Some(&(top, top_low)) = stack.last() {
-                if top > v {
-                    break;
+    /// Lowest power between bin `k` and the nearest strictly higher bin
+    /// on one side (`left`: towards bin 0), or the spectrum's end.
+    fn saddle(&self, p: &[f64], k: usize, left: bool) -> f64 {
+        let v = p[k];
+        let b = PROMINENCE_BLOCK;
+        let mut low = v;
+        // Bin by bin to the edge of k's block, then block by block, then
+        // bin by bin in the block holding the higher ground.
+        let walk = |from: usize, to: usize, low: &mut f64| -> bool {
+            // Visits from..to in the walking direction; true when it meets
+            // higher ground.
+            if left {
+                for &x in p[to..from].iter().rev() {
+                    if x > v {
+                        return true;
+                    }
+                    *low = low.min(x);
                 }
-                low = low.min(top_low);
-                stack.pop();
+            } else {
+                for &x in &p[from..to] {
+                    if x > v {
+                        return true;
+                    }
+                    *low = low.min(x);
+                }
             }
-            stack.push((v, low));
-            out.push(low);
+            false
+        };
+        let blk = k / b;
+        if left {
+            if walk(k, blk * b, &mut low) {
+                return low;
+            }
+            for j in (0..blk).rev() {
+                if self.block_max[j] > v {
+                    walk((j + 1) * b, j * b, &mut low);
+                    return low;
+                }
+                low = low.min(self.block_min[j]);
+            }
+        } else {
+            let end = ((blk + 1) * b).min(p.len());
+            if walk(k + 1, end, &mut low) {
+                return low;
+            }
+            for j in blk + 1..self.block_max.len() {
+                if self.block_max[j] > v {
+                    walk(j * b, ((j + 1) * b).min(p.len()), &mut low);
+                    return low;
+                }
+                low = low.min(self.block_min[j]);
+            }
         }
-        out
+        low
     }
 
     /// Topographic prominence of the peak at `k`, dB: its height over the
     /// higher of the two lowest points between it and the nearest higher
     /// ground on either side (or the spectrum's end). Works on power.
     fn prominence_db(&self, p: &[f64], k: usize) -> f64 {
-        10.0 * (p[k] / self.left[k].max(self.right[k]).max(1e-300)).log10()
+        let saddle = self.saddle(p, k, true).max(self.saddle(p, k, false));
+        10.0 * (p[k] / saddle.max(1e-300)).log10()
     }
 }
 
@@ -814,7 +859,7 @@ mod tests {
     }
 
     #[test]
-    fn one_pass_saddles_equal_the_walk_from_every_bin() {
+    fn block_saddles_equal_the_walk_from_every_bin() {
         let mut rng = crate::synth::Rng::new(41);
         // Ties included: values on a coarse grid.
         let p: Vec<f64> = (0..2000)

@@ -249,6 +249,11 @@ fn evenness_of(panel: &Panel, modes: &[ModeRow]) -> Option<crate::evenness::Even
 /// range is rounded up to a power of 1.25 times the fundamental factor so
 /// that nearby requests share an entry.
 fn cached_lines(panel: &Panel, g_max: f64) -> Vec<ModeLine> {
+    with_cached_lines(panel, g_max, |lines| lines.to_vec())
+}
+
+/// Calls `f` on the cached lines of [`cached_lines`] without copying them.
+fn with_cached_lines<R>(panel: &Panel, g_max: f64, f: impl FnOnce(&[ModeLine]) -> R) -> R {
     use std::collections::HashMap;
     use std::sync::{Mutex, OnceLock};
     type Key = (String, i32);
@@ -263,15 +268,16 @@ fn cached_lines(panel: &Panel, g_max: f64) -> Vec<ModeLine> {
     );
     let cache = CACHE.get_or_init(|| Mutex::new(HashMap::new()));
     if let Some(hit) = cache.lock().unwrap_or_else(|e| e.into_inner()).get(&key) {
-        return hit.clone();
+        return f(hit);
     }
     let lines = panel.shape.lines(g_bucket, panel.tap, panel.pickup);
+    let out = f(&lines);
     let mut guard = cache.lock().unwrap_or_else(|e| e.into_inner());
     if guard.len() > 64 {
         guard.clear();
     }
-    guard.insert(key, lines.clone());
-    lines
+    guard.insert(key, lines);
+    out
 }
 
 /// Upper ends of the relabelling bands, in multiples of the lowest
@@ -477,12 +483,13 @@ pub fn measure_with(
     // few lines: g_max = g(ANCHOR_LINES-th line) · f_hi/f_lo.
     // (The factors do not depend on the tap, so the cache serves here.)
     let g_probe = panel.shape.fundamental_factor() * 6.0;
-    let mut probe = cached_lines(panel, g_probe);
-    probe.retain(|l| l.factor <= g_probe * (1.0 + 1e-12));
-    let g_anchor = probe
-        .get(matching::ANCHOR_LINES.min(probe.len()) - 1)
-        .map(|l| l.factor)
-        .unwrap_or(panel.shape.fundamental_factor());
+    let g_anchor = with_cached_lines(panel, g_probe, |all| {
+        let below = all.partition_point(|l| l.factor <= g_probe * (1.0 + 1e-12));
+        all[..below]
+            .get(matching::ANCHOR_LINES.min(below).max(1) - 1)
+            .map(|l| l.factor)
+    })
+    .unwrap_or(panel.shape.fundamental_factor());
     let lines = if parts.is_empty() {
         Vec::new()
     } else {

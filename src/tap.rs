@@ -71,11 +71,36 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
     let diff: Vec<f64> = std::iter::once(0.0)
         .chain(samples.windows(2).map(|w| w[1] - w[0]))
         .collect();
+    // Frame energies from sums over hop-long blocks (every frame is a
+    // whole number of hops): each sample is squared once, not once per
+    // overlapping frame, and the sums stay exact sums of squares.
     let frame_db = |sig: &[f64], len: usize| -> Vec<f64> {
+        let per = if hop > 0 && len % hop == 0 {
+            len / hop
+        } else {
+            0
+        };
+        if per == 0 {
+            return (0..n_frames)
+                .map(|j| {
+                    let s = &sig[(j * hop).min(n)..(j * hop + len).min(n)];
+                    let e = s.iter().map(|x| x * x).sum::<f64>() / s.len().max(1) as f64;
+                    10.0 * (e + 1e-20).log10()
+                })
+                .collect();
+        }
+        let blocks: Vec<f64> = sig
+            .chunks(hop)
+            .map(|c| c.iter().map(|x| x * x).sum::<f64>())
+            .collect();
         (0..n_frames)
             .map(|j| {
-                let s = &sig[(j * hop).min(n)..(j * hop + len).min(n)];
-                let e = s.iter().map(|x| x * x).sum::<f64>() / s.len().max(1) as f64;
+                let from = (j * hop).min(n);
+                let to = (j * hop + len).min(n);
+                let e = blocks[(j).min(blocks.len())..(j + per).min(blocks.len())]
+                    .iter()
+                    .sum::<f64>()
+                    / (to - from).max(1) as f64;
                 10.0 * (e + 1e-20).log10()
             })
             .collect()
