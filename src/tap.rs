@@ -75,7 +75,7 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
     // whole number of hops): each sample is squared once, not once per
     // overlapping frame, and the sums stay exact sums of squares.
     let frame_db = |sig: &[f64], len: usize| -> Vec<f64> {
-        let per = if hop > 0 && len % hop == 0 {
+        let per = if hop > 0 && len.is_multiple_of(hop) {
             len / hop
         } else {
             0
