@@ -127,7 +127,13 @@ fn self_cpu_s() -> f64 {
 
 /// Runs the binary on `files`; returns (seconds, CPU seconds, peak RSS
 /// KiB, exit code).
-fn run_binary(bin: &Path, spec: &Path, files: &[PathBuf], out: &Path) -> (f64, f64, i64, i32) {
+fn run_binary(
+    bin: &Path,
+    spec: &Path,
+    files: &[PathBuf],
+    out: &Path,
+    mode: &str,
+) -> (f64, f64, i64, i32) {
     let _ = std::fs::remove_dir_all(out);
     // The file list goes through a folder of links so the command line
     // stays short whatever the count.
@@ -151,7 +157,7 @@ fn run_binary(bin: &Path, spec: &Path, files: &[PathBuf], out: &Path) -> (f64, f
         .arg("--history")
         .arg(out.join("history.sqlite"))
         .arg(&folder)
-        .args(peaks_only().then_some("--peaks-only"))
+        .args(["--refine", refinement_of(mode).name()])
         .stdout(std::process::Stdio::null())
         .spawn()
         .expect("tonus runs");
@@ -210,9 +216,12 @@ fn main() {
                 "{:>8} {:>10} {:>16} {:>10} {:>18} {:>14} {:>5}",
                 "files", "wall [s]", "recordings/s", "CPU [s]", "CPU ms/recording", "peak RSS [MB]", "exit"
             );
+            let mode = mode_arg();
+            println!("--refine {mode}");
             for (n, label) in [(quarter, "quarter"), (count, "all")] {
                 let out = d.join(format!("out-bin-{label}"));
-                let (secs, cpu, rss_kib, code) = run_binary(bin, &spec_path, &files[..n], &out);
+                let (secs, cpu, rss_kib, code) =
+                    run_binary(bin, &spec_path, &files[..n], &out, &mode);
                 println!(
                     "{:>8} {:>10.2} {:>16.0} {:>10.2} {:>18.2} {:>14.1} {:>5}",
                     n,
@@ -222,6 +231,25 @@ fn main() {
                     1e3 * cpu / n as f64,
                     rss_kib as f64 / 1024.0,
                     code
+                );
+            }
+            // The decisions against those of refining every recording.
+            if mode != "always" {
+                let out = d.join("out-bin-always");
+                let (secs, _, _, _) = run_binary(bin, &spec_path, &files, &out, "always");
+                let base = decisions(&out.join("inspect.csv"));
+                let this = decisions(&d.join("out-bin-all").join("inspect.csv"));
+                let same = base
+                    .iter()
+                    .zip(&this)
+                    .filter(|(a, b)| a.0 == b.0 && a.1 == b.1)
+                    .count();
+                let refined = this.iter().filter(|r| r.2 == "refined").count();
+                println!(
+                    "\n--refine {mode}: {refined} of {} recordings refined; decisions equal to --refine always ({:.0} recordings/s) for {same} of {}",
+                    this.len(),
+                    base.len() as f64 / secs,
+                    base.len()
                 );
             }
         }
@@ -249,7 +277,7 @@ fn main() {
             station: None,
             operator: None,
             progress: false,
-            peaks_only: peaks_only(),
+            refinement: refinement(),
         };
         let t0 = Instant::now();
         let (outcome, timing) =
@@ -296,7 +324,46 @@ fn main() {
     );
 }
 
-/// `-- --peaks-only`: time inspect without the damped-sinusoid refinement.
-fn peaks_only() -> bool {
-    std::env::args().any(|a| a == "--peaks-only")
+/// `-- --refine MODE` (always, near-limits, never; `--peaks-only` is
+/// never): which recordings inspect refines [default: near-limits].
+fn mode_arg() -> String {
+    let args: Vec<String> = std::env::args().collect();
+    if args.iter().any(|a| a == "--peaks-only") {
+        return "never".into();
+    }
+    args.iter()
+        .position(|a| a == "--refine")
+        .and_then(|i| args.get(i + 1).cloned())
+        .unwrap_or_else(|| "near-limits".into())
+}
+
+fn refinement_of(mode: &str) -> tonus::batch::Refinement {
+    tonus::batch::Refinement::from_name(mode)
+        .unwrap_or_else(|| panic!("--refine {mode}: use always, near-limits or never"))
+}
+
+fn refinement() -> tonus::batch::Refinement {
+    refinement_of(&mode_arg())
+}
+
+/// (file name, decision, frequency method) of every row of an
+/// `inspect.csv`.
+fn decisions(csv_path: &Path) -> Vec<(String, String, String)> {
+    let mut r = csv::Reader::from_path(csv_path).expect("inspect.csv");
+    let h = r.headers().expect("header").clone();
+    let col = |name: &str| h.iter().position(|x| x == name).expect("column");
+    let (f, d, m) = (col("file"), col("decision"), col("frequency_method"));
+    let mut v: Vec<(String, String, String)> = r
+        .records()
+        .map(|rec| {
+            let rec = rec.expect("row");
+            let name = Path::new(&rec[f])
+                .file_name()
+                .map(|n| n.to_string_lossy().into_owned())
+                .unwrap_or_default();
+            (name, rec[d].to_string(), rec[m].to_string())
+        })
+        .collect();
+    v.sort();
+    v
 }

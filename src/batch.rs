@@ -85,9 +85,105 @@ pub struct InspectOptions {
     pub operator: Option<String>,
     /// Show a progress bar, when standard error is a terminal.
     pub progress: bool,
-    /// FFT peaks only: skip the damped-sinusoid refinement (about half the
-    /// time per recording; no frequency uncertainties or split pairs).
-    pub peaks_only: bool,
+    /// How much of the damped-sinusoid refinement the batch spends.
+    pub refinement: Refinement,
+}
+
+/// Which recordings of a batch get the damped-sinusoid refinement
+/// ([`crate::partials::refine`]) on top of the FFT peaks.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Refinement {
+    /// Every recording: per-mode frequency uncertainties, Cramér–Rao
+    /// bounds, decays with uncertainty and split pairs in every record
+    /// (about twice the time per recording).
+    Always,
+    /// A recording is measured on its FFT peaks first, and measured again
+    /// with the refinement when its decision is not settled: when moving
+    /// the tension (or anisotropy) by [`NEAR_LIMIT_FIT_U`] times the
+    /// fit's own standard uncertainty either way changes the decision, or
+    /// it is not measured. The refinement moves a tension by about one
+    /// such uncertainty, so it cannot change the decision of a settled
+    /// recording; each record says which method it carries.
+    #[default]
+    NearLimits,
+    /// Never: FFT peaks only.
+    Never,
+}
+
+impl Refinement {
+    /// The name on the command line: `always`, `near-limits`, `never`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Refinement::Always => "always",
+            Refinement::NearLimits => "near-limits",
+            Refinement::Never => "never",
+        }
+    }
+
+    /// Parses a name of [`Refinement::name`].
+    pub fn from_name(name: &str) -> Option<Refinement> {
+        [
+            Refinement::Always,
+            Refinement::NearLimits,
+            Refinement::Never,
+        ]
+        .into_iter()
+        .find(|r| r.name() == name)
+    }
+}
+
+/// A decision is settled when it stays the same with the tension (and the
+/// anisotropy, where measured) moved this many of the fit's own standard
+/// uncertainties either way ([`Refinement::NearLimits`]). The refined and
+/// the FFT-peak tensions of one recording differ by about one fit
+/// uncertainty (the FFT fit's carries a Type B term for its peak method),
+/// and the guard band w = k·u changes by less than k fit uncertainties;
+/// 10 leaves a wide margin over both with k = 2.
+pub const NEAR_LIMIT_FIT_U: f64 = 10.0;
+
+/// Whether `m`'s decision under `spec` is settled ([`Refinement::NearLimits`]):
+/// it has a tension, is decided (not "not measured"), and keeps its
+/// decision when the tension, and the anisotropy if any, move by
+/// [`NEAR_LIMIT_FIT_U`] of their fit uncertainties either way.
+pub fn decision_is_settled(spec: &Spec, m: &pipeline::Measurement) -> bool {
+    let input = spec.decision_input(m);
+    let base = spec.decide(m).decision;
+    if matches!(base, Decision::NotMeasured { .. }) {
+        return false;
+    }
+    let (Some(t), Some(fit_t)) = (input.tension, m.tension) else {
+        return false;
+    };
+    let same = |inp: &crate::decision::DecisionInput| {
+        crate::decision::decide(inp, &spec.limits, &spec.rule)
+            .decision
+            .name()
+            == base.name()
+    };
+    let dt = NEAR_LIMIT_FIT_U * fit_t.standard_uncertainty;
+    let tension_ok = [-dt, dt].iter().all(|&d| {
+        let mut inp = input.clone();
+        inp.tension = Some(crate::fit::Estimate {
+            value: t.value + d,
+            ..t
+        });
+        same(&inp)
+    });
+    let anisotropy_ok = match input.anisotropy_percent {
+        Some(a) => {
+            let da = NEAR_LIMIT_FIT_U * a.standard_uncertainty;
+            [-da, da].iter().all(|&d| {
+                let mut inp = input.clone();
+                inp.anisotropy_percent = Some(crate::fit::Estimate {
+                    value: a.value + d,
+                    ..a
+                });
+                same(&inp)
+            })
+        }
+        None => true,
+    };
+    tension_ok && anisotropy_ok
 }
 
 /// How the watch mode polls and when it stops.
@@ -205,16 +301,27 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
         let rec = rec?;
         let t2 = Instant::now();
         let panel = spec.panel();
-        let fit_opts = pipeline::FitOptions {
-            model: spec.model.fit_model(),
-            analysis: crate::partials::AnalysisConfig {
-                refine: !opts.peaks_only,
-                ..Default::default()
-            },
-            calibration: None,
+        let measure = |refine: bool| {
+            let fit_opts = pipeline::FitOptions {
+                model: spec.model.fit_model(),
+                analysis: crate::partials::AnalysisConfig {
+                    refine,
+                    ..Default::default()
+                },
+                calibration: None,
+            };
+            PLANNER.with(|p| pipeline::measure_with(&rec, &panel, &fit_opts, &mut p.borrow_mut()))
         };
-        let m =
-            PLANNER.with(|p| pipeline::measure_with(&rec, &panel, &fit_opts, &mut p.borrow_mut()));
+        let mut refined = opts.refinement == Refinement::Always;
+        let mut m = measure(refined);
+        if opts.refinement == Refinement::NearLimits {
+            if let Ok(first) = &m {
+                if !decision_is_settled(spec, first) {
+                    refined = true;
+                    m = measure(true);
+                }
+            }
+        }
         add_elapsed(&counters.measure_ns, t2);
         let m = m?;
         let t3 = Instant::now();
@@ -232,6 +339,10 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
             o.insert(
                 "recording_sha256".into(),
                 serde_json::Value::String(sha.clone()),
+            );
+            o.insert(
+                "frequency_method".into(),
+                serde_json::Value::String(frequency_method(refined).into()),
             );
         }
         let ctx = RecordingContext {
@@ -346,7 +457,17 @@ pub fn station_line(e: &BatchEntry) -> String {
     }
 }
 
-const CSV_HEADER: [&str; 16] = [
+/// The `frequency_method` of a record: `refined` (damped-sinusoid fits
+/// of the modes) or `fft_peaks` (sub-bin FFT peaks only).
+fn frequency_method(refined: bool) -> &'static str {
+    if refined {
+        "refined"
+    } else {
+        "fft_peaks"
+    }
+}
+
+const CSV_HEADER: [&str; 17] = [
     "file",
     "sha256",
     "time",
@@ -363,6 +484,7 @@ const CSV_HEADER: [&str; 16] = [
     "margin_n_per_m",
     "reasons",
     "error",
+    "frequency_method",
 ];
 
 fn csv_record(fields: &[String]) -> Vec<u8> {
@@ -403,6 +525,10 @@ fn csv_row(
         f(d["margin"]["n_per_m"].as_f64()),
         r.map(|r| r.reasons.join("; ")).unwrap_or_default(),
         error.unwrap_or_default().to_string(),
+        json["frequency_method"]
+            .as_str()
+            .unwrap_or_default()
+            .to_string(),
     ];
     csv_record(&fields)
 }

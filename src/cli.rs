@@ -210,9 +210,13 @@ pub enum Command {
         /// Operator name for the record.
         #[arg(long)]
         operator: Option<String>,
-        /// FFT peaks only: skip the damped-sinusoid refinement (about half
-        /// the time per recording; no frequency uncertainties or split pairs).
-        #[arg(long)]
+        /// Which recordings get the damped-sinusoid refinement: always,
+        /// near-limits (those whose decision a shift of 10 fit
+        /// uncertainties would change) or never [default: near-limits].
+        #[arg(long, value_name = "WHEN", default_value = "near-limits", value_parser = ["always", "near-limits", "never"])]
+        refine: String,
+        /// FFT peaks only, the same as --refine never.
+        #[arg(long, conflicts_with = "refine")]
         peaks_only: bool,
     },
     /// List or export the decision history.
@@ -620,7 +624,24 @@ fn parse_skew(text: &str) -> Result<f64> {
     Ok(v)
 }
 
-/// Parses the synth sample format flag into (bits, float).
+/// The batch's [`crate::batch::Refinement`] from `--refine` (checked by
+/// clap against its three names) and `--peaks-only` (which clap keeps
+/// from being given with `--refine`).
+///
+/// # Errors
+/// A `--refine` value that is not a refinement name.
+pub fn refinement(refine: &str, peaks_only: bool) -> Result<crate::batch::Refinement> {
+    if peaks_only {
+        return Ok(crate::batch::Refinement::Never);
+    }
+    crate::batch::Refinement::from_name(refine).ok_or_else(|| TonusError::BadQuantity {
+        key: "--refine".into(),
+        value: refine.into(),
+        expected: "when to refine".into(),
+        example: "always, near-limits or never".into(),
+    })
+}
+
 /// The watch mode's options from its flags; the interval defaults to
 /// [`crate::batch::WATCH_INTERVAL_DEFAULT_S`] and must lie between
 /// [`crate::batch::WATCH_INTERVAL_MIN_S`] and

@@ -151,6 +151,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             no_history,
             station,
             operator,
+            refine,
             peaks_only,
         } => {
             let spec = tonus::spec::Spec::from_file(&spec)?;
@@ -160,7 +161,7 @@ fn run(cli: Cli) -> Result<Outcome> {
                 station,
                 operator,
                 progress: true,
-                peaks_only,
+                refinement: cli::refinement(&refine, peaks_only)?,
             };
             match watch {
                 Some(dir) => tonus::batch::watch(

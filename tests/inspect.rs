@@ -528,3 +528,82 @@ fn batch_report_is_written_beside_the_table() {
         assert!(!name.contains(".part"), "{name}");
     }
 }
+
+/// (decision, frequency method) of every row of an inspect.csv, in order.
+fn decisions_and_methods(csv_path: &Path) -> Vec<(String, String)> {
+    let mut r = csv::Reader::from_path(csv_path).unwrap();
+    let h = r.headers().unwrap().clone();
+    let col = |name: &str| h.iter().position(|x| x == name).unwrap();
+    let (d, m) = (col("decision"), col("frequency_method"));
+    r.records()
+        .map(|x| {
+            let x = x.unwrap();
+            (x[d].to_string(), x[m].to_string())
+        })
+        .collect()
+}
+
+#[test]
+fn refinement_near_limits_issue5() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // Guarded rule, u(T) ≈ 1 % of T from σ: the lower acceptance limit
+    // L + 2·u(T) lies where T·(1 − 0.02) = 1800 N/m, near 1836.7 N/m. A
+    // tap at 1837 N/m sits within a fraction of a newton of it, far inside
+    // ten fit uncertainties (about 0.4 N/m each); one at 2000 N/m is
+    // settled.
+    let files = [
+        make(d, "a-2000.wav", "2000N/m"),
+        make(d, "b-1837.wav", "1837N/m"),
+    ];
+    let s = spec(d, "guarded");
+    let run = |extra: &[&str], tag: &str| {
+        let out = d.join(format!("out-{tag}"));
+        let mut args = vec![
+            "inspect",
+            "--spec",
+            s.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--no-history",
+        ];
+        args.extend_from_slice(extra);
+        for f in &files {
+            args.push(f.to_str().unwrap());
+        }
+        let o = tonus(&args);
+        assert!(
+            matches!(o.status.code(), Some(0 | 1)),
+            "{}",
+            String::from_utf8_lossy(&o.stderr)
+        );
+        decisions_and_methods(&out.join("inspect.csv"))
+    };
+    let default = run(&[], "default");
+    let always = run(&["--refine", "always"], "always");
+    let never = run(&["--refine", "never"], "never");
+    let methods = |v: &[(String, String)]| v.iter().map(|x| x.1.clone()).collect::<Vec<_>>();
+    assert_eq!(methods(&default), ["fft_peaks", "refined"]);
+    assert_eq!(methods(&always), ["refined", "refined"]);
+    assert_eq!(methods(&never), ["fft_peaks", "fft_peaks"]);
+    // The settled recording's decision is the one refining gives.
+    assert_eq!(default[0].0, "pass");
+    for (a, b) in default.iter().zip(&always) {
+        assert_eq!(a.0, b.0);
+    }
+    // --peaks-only is --refine never, and the two cannot be combined.
+    assert_eq!(
+        methods(&run(&["--peaks-only"], "peaks")),
+        ["fft_peaks", "fft_peaks"]
+    );
+    let o = tonus(&[
+        "inspect",
+        "--spec",
+        s.to_str().unwrap(),
+        "--peaks-only",
+        "--refine",
+        "always",
+        files[0].to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+}
