@@ -328,7 +328,14 @@ fn assign_logs(ln_f: &[f64], ln_g: &[f64], lines: &[ModeLine], ln_c: f64) -> Vec
             }
         }
     }
-    cands.sort_by(|a, b| a.residual_cents.abs().total_cmp(&b.residual_cents.abs()));
+    // Unstable sorts (no scratch buffer) with the partial as tie-break:
+    // the same order as a stable sort of candidates made in partial order.
+    cands.sort_unstable_by(|a, b| {
+        a.residual_cents
+            .abs()
+            .total_cmp(&b.residual_cents.abs())
+            .then(a.partial.cmp(&b.partial))
+    });
     // Lines taken so far and how often (a short list: at most one entry
     // per partial, where a flag per line would clear thousands of lines
     // for every hypothesis).
@@ -343,7 +350,11 @@ fn assign_logs(ln_f: &[f64], ln_g: &[f64], lines: &[ModeLine], ln_c: f64) -> Vec
         }
         out.push(a);
     }
-    out.sort_by(|a, b| ln_f[a.partial].total_cmp(&ln_f[b.partial]));
+    out.sort_unstable_by(|a, b| {
+        ln_f[a.partial]
+            .total_cmp(&ln_f[b.partial])
+            .then(a.partial.cmp(&b.partial))
+    });
     out
 }
 

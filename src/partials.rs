@@ -546,9 +546,7 @@ fn measure_decays(
     if n_frames < 3 {
         return;
     }
-    let hann: Vec<f64> = (0..frame)
-        .map(|i| 0.5 - 0.5 * (2.0 * std::f64::consts::PI * i as f64 / frame as f64).cos())
-        .collect();
+    let hann = crate::spectrum::hann(frame);
     let hann_sq: f64 = hann.iter().map(|x| x * x).sum();
     let fft = planner.plan_fft_forward(frame);
     let mut input = fft.make_input_vec();
