@@ -60,6 +60,7 @@
 //! (u_T/T)² = (u_fit/T)² + (u_σ/σ)², see [`Spec::tension_uncertainty`].
 //! The dimensions' uncertainty is not included.
 
+use crate::calibration;
 use crate::decision::{self, DecisionInput, DecisionRule, Limits, Rule, Verdict};
 use crate::error::{Result, TonusError};
 use crate::fit::{Estimate, FitModel};
@@ -71,6 +72,7 @@ use crate::units::{self, KgPerM2, Meters};
 use serde::Serialize;
 use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 use toml::de::{DeTable, DeValue};
 use toml::Spanned;
 
@@ -82,27 +84,57 @@ pub const DEFAULT_MIN_QUALITY: Grade = Grade::Fair;
 /// The values are copied, not recomputed, so only rounding is allowed for.
 const SAME_DENSITY_REL: f64 = 1e-9;
 
-/// The fit model a specification asks for.
+/// The fit model a specification asks for: the models of `tonus fit
+/// --model` (named as there, [`FitModel::from_name`]) except the free
+/// aspect ratio, which would fit the geometry a specification fixes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum SpecModel {
     /// Wave speed only, geometry as given ([`FitModel::Isotropic`]).
     Isotropic,
+    /// Tx and Ty of a rectangle, the anisotropy with its uncertainty
+    /// ([`FitModel::Biaxial`]); the tension decided on is the mean
+    /// (Tx + Ty)/2.
+    Biaxial,
+    /// The air-loaded membrane ([`FitModel::AirLoaded`]), for light films
+    /// such as drum heads.
+    Air,
+    /// The prestressed, simply supported rectangular plate
+    /// ([`FitModel::Stiff`]): tension with the bending stiffness fitted.
+    Stiff,
 }
 
 impl SpecModel {
+    /// The specification model for a fit model; None for the free aspect
+    /// ratio.
+    pub fn from_fit_model(m: FitModel) -> Option<SpecModel> {
+        match m {
+            FitModel::Isotropic => Some(SpecModel::Isotropic),
+            FitModel::Biaxial => Some(SpecModel::Biaxial),
+            FitModel::AirLoaded => Some(SpecModel::Air),
+            FitModel::Stiff => Some(SpecModel::Stiff),
+            FitModel::FreeAspect => None,
+        }
+    }
+
     /// The fit model to run.
     pub fn fit_model(self) -> FitModel {
         match self {
             SpecModel::Isotropic => FitModel::Isotropic,
+            SpecModel::Biaxial => FitModel::Biaxial,
+            SpecModel::Air => FitModel::AirLoaded,
+            SpecModel::Stiff => FitModel::Stiff,
         }
     }
 
-    /// The name in the file.
+    /// The name in the file (as `tonus fit --model` writes it).
     pub fn name(self) -> &'static str {
-        match self {
-            SpecModel::Isotropic => "isotropic",
-        }
+        self.fit_model().name()
+    }
+
+    /// The model measures the anisotropy Tx/Ty (biaxial only).
+    pub fn measures_anisotropy(self) -> bool {
+        self == SpecModel::Biaxial
     }
 }
 
@@ -129,6 +161,11 @@ pub struct Spec {
     pub limits: Limits,
     /// The decision rule and coverage factor.
     pub rule: DecisionRule,
+    /// The calibration named by `[panel] calibration`, loaded and checked
+    /// against the panel.
+    pub calibration: Option<Arc<calibration::Loaded>>,
+    /// SHA-256 of the calibration file's bytes, hex (with `calibration`).
+    pub calibration_sha256: Option<String>,
     panel: Panel,
 }
 
@@ -182,6 +219,7 @@ impl Spec {
         })?;
         let mut ld = Loader {
             bytes,
+            dir: path.parent().map(Path::to_path_buf).unwrap_or_default(),
             problems: Vec::new(),
         };
         let spec = ld.load(doc.get_ref(), path, sha256_hex(bytes));
@@ -223,15 +261,42 @@ impl Spec {
         tension.standard_uncertainty.hypot(tension.value * rel)
     }
 
+    /// Standard uncertainty of a tension fitted against the calibration,
+    /// N/m: u_T = √(u_fit² + (T·u_ref)² + (T·u_f)²), u_ref = u(T_ref)/T_ref
+    /// the reference tension's relative part and u_f the per-mode
+    /// factors' ([`calibration::CalibrationTerm`]). σ does not enter: with
+    /// the calibration's σ, T = T_ref·(f/f_ref)² mode by mode, so the areal
+    /// density and its uncertainty cancel ([`crate::calibration`]).
+    pub fn calibrated_tension_uncertainty(
+        tension: &Estimate,
+        term: &calibration::CalibrationTerm,
+    ) -> f64 {
+        let rel = term.u_rel_reference.hypot(term.u_rel_factors);
+        tension.standard_uncertainty.hypot(tension.value * rel)
+    }
+
     /// What [`decision::decide`] is given for a measurement: the tension
-    /// with [`Spec::tension_uncertainty`], the grade and its reasons.
+    /// with [`Spec::tension_uncertainty`] (or
+    /// [`Spec::calibrated_tension_uncertainty`] when the fit used the
+    /// calibration), the anisotropy of the biaxial model, the unevenness
+    /// from the resolved split pairs (the spread 2|ε| with u = 2·u(ε),
+    /// percent, [`crate::evenness::Evenness::spread_pct`]), the grade and
+    /// its reasons.
     pub fn decision_input(&self, m: &Measurement) -> DecisionInput {
+        let term = m.calibration.as_ref().and_then(|c| c.term);
         DecisionInput {
             tension: m.tension.map(|t| Estimate {
                 value: t.value,
-                standard_uncertainty: self.tension_uncertainty(&t),
+                standard_uncertainty: match &term {
+                    Some(term) => Spec::calibrated_tension_uncertainty(&t, term),
+                    None => self.tension_uncertainty(&t),
+                },
             }),
-            anisotropy_percent: None,
+            anisotropy_percent: m.biaxial.as_ref().map(|b| b.anisotropy_percent),
+            unevenness_percent: m.evenness.as_ref().map(|e| Estimate {
+                value: e.spread_pct,
+                standard_uncertainty: 2.0 * e.epsilon_u_pct,
+            }),
             grade: m.quality.grade,
             grade_reasons: m.quality.reasons.clone(),
         }
@@ -296,6 +361,7 @@ const PANEL_KEYS: &[&str] = &[
     "pickup-at",
     "areal-density-u",
     "model",
+    "calibration",
     "note",
 ];
 const LIMITS_KEYS: &[&str] = &[
@@ -303,6 +369,7 @@ const LIMITS_KEYS: &[&str] = &[
     "lower-tension",
     "upper-tension",
     "max-anisotropy-percent",
+    "max-unevenness-percent",
     "min-quality",
 ];
 const DECISION_KEYS: &[&str] = &["rule", "coverage-factor"];
@@ -364,7 +431,24 @@ impl<'a, 'i> Section<'a, 'i> {
 
 struct Loader<'b> {
     bytes: &'b [u8],
+    /// The specification's folder: a relative calibration path starts here.
+    dir: PathBuf,
     problems: Vec<(Option<usize>, String)>,
+}
+
+/// What `[panel]` gives the rest of the file.
+#[derive(Default)]
+struct PanelPart {
+    panel: Option<Panel>,
+    spec: Option<PanelSpec>,
+    density_u: Option<KgPerM2>,
+    model: Option<SpecModel>,
+    /// Circle or rectangle, when the shape could be read.
+    is_circle: Option<bool>,
+    /// Width equals height (square panel), when both could be read.
+    is_square: Option<bool>,
+    /// `Some(None)` without a calibration key; None when it failed.
+    calibration: Option<Option<(Arc<calibration::Loaded>, String)>>,
 }
 
 impl<'b> Loader<'b> {
@@ -560,10 +644,10 @@ impl<'b> Loader<'b> {
         let note = text_key(self, "note", "a note", false);
 
         // [panel]
-        let (panel, panel_spec, density_u, model) = self.load_panel(&panel_t);
+        let pp = self.load_panel(&panel_t);
 
         // [limits]
-        let limits = self.load_limits(&limits_t, model);
+        let limits = self.load_limits(&limits_t, &pp);
 
         // [decision]
         let rule = if decision_t.line.is_some() {
@@ -596,33 +680,27 @@ impl<'b> Loader<'b> {
             None
         };
 
+        let calibration = pp.calibration?;
         Some(Spec {
             path: path.to_path_buf(),
             name: name?,
             version: version?,
             note,
             hash,
-            panel_spec: panel_spec?,
-            areal_density_u: density_u?,
-            model: model?,
+            panel_spec: pp.spec?,
+            areal_density_u: pp.density_u?,
+            model: pp.model?,
             limits: limits?,
             rule: rule?,
-            panel: panel?,
+            calibration_sha256: calibration.as_ref().map(|c| c.1.clone()),
+            calibration: calibration.map(|c| c.0),
+            panel: pp.panel?,
         })
     }
 
-    #[allow(clippy::type_complexity)] // a one-off tuple of the table's parts
-    fn load_panel(
-        &mut self,
-        t: &Section,
-    ) -> (
-        Option<Panel>,
-        Option<PanelSpec>,
-        Option<KgPerM2>,
-        Option<SpecModel>,
-    ) {
+    fn load_panel(&mut self, t: &Section) -> PanelPart {
         if t.line.is_none() {
-            return (None, None, None, None);
+            return PanelPart::default();
         }
         let ok_before = self.problems.len();
         let length = "a length with its unit, e.g. \"400mm\"";
@@ -648,6 +726,7 @@ impl<'b> Loader<'b> {
         // The shape's dimensions; keys of the other shape are refused so a
         // forgotten line cannot silently change the panel.
         let mut shape_ok = false;
+        let mut is_square = None;
         let mut placeholder = None;
         match is_circle {
             Some(false) => {
@@ -664,6 +743,9 @@ impl<'b> Loader<'b> {
                     height: Meters(1.0),
                 });
                 if let (Some(w), Some(h)) = (w, h) {
+                    // Tolerance: the same length written two ways (mm, m)
+                    // differs by rounding only.
+                    is_square = Some((w.2 .0 - h.2 .0).abs() <= 1e-9 * w.2 .0);
                     ps.width = Some(w.1);
                     ps.height = Some(h.1);
                     shape_ok = true;
@@ -824,18 +906,48 @@ impl<'b> Loader<'b> {
             }
         }
 
+        let model_what = "the fit model: \"isotropic\", \"biaxial\" (rectangle), \"air\" or \"stiff\" (rectangle)";
         let model = self
-            .string(t, "model", "the fit model, \"isotropic\"", true)
-            .and_then(|(line, text)| match text.as_str() {
-                "isotropic" => Some(SpecModel::Isotropic),
-                _ => {
-                    self.problem(
-                        Some(line),
-                        format!("key 'model': {text:?} is not a model a specification can use; write \"isotropic\" (the only one so far)"),
-                    );
-                    None
+            .string(t, "model", model_what, true)
+            .and_then(|(line, text)| {
+                let m = FitModel::from_name(&text).map(|m| (m, SpecModel::from_fit_model(m)));
+                match m {
+                    Some((_, Some(m))) => Some((line, m)),
+                    Some((_, None)) => {
+                        self.problem(
+                            Some(line),
+                            format!("key 'model': {text:?} fits the panel's height, which a specification fixes; write \"isotropic\" (or \"biaxial\" for a mesh stretched unevenly along its sides)"),
+                        );
+                        None
+                    }
+                    None => {
+                        self.problem(
+                            Some(line),
+                            format!("key 'model': {text:?} is not a model; write {model_what}"),
+                        );
+                        None
+                    }
                 }
             });
+        // A model defined on rectangles only is refused on a circle here,
+        // with the line, rather than on every recording.
+        let model = match (model, is_circle) {
+            (Some((line, m)), Some(true)) if m.fit_model().needs_rectangle() => {
+                let why = match m {
+                    SpecModel::Biaxial => "Tx and Ty act along the sides of a rectangle; for uneven tension on a circle use model \"isotropic\" or \"air\" with [limits] max-unevenness-percent",
+                    _ => "the prestressed plate is solved for a simply supported rectangle",
+                };
+                self.problem(
+                    Some(line),
+                    format!(
+                        "key 'model': {:?} does not apply to a circle: {why}",
+                        m.name()
+                    ),
+                );
+                None
+            }
+            (m, _) => m.map(|(_, m)| m),
+        };
 
         let panel = if shape_ok && sigma.is_some() && self.problems.len() == ok_before {
             match Panel::from_spec(&ps) {
@@ -848,11 +960,108 @@ impl<'b> Loader<'b> {
         } else {
             None
         };
-        (panel, Some(ps), density_u, model)
+        let calibration = self.load_calibration(t, panel.as_ref(), model);
+        PanelPart {
+            panel,
+            spec: Some(ps),
+            density_u,
+            model,
+            is_circle,
+            is_square: if is_circle == Some(true) {
+                Some(false)
+            } else {
+                is_square
+            },
+            calibration,
+        }
     }
 
-    fn load_limits(&mut self, t: &Section, model: Option<SpecModel>) -> Option<Limits> {
+    /// `[panel] calibration`: a calibration file (relative paths from the
+    /// specification's folder), read and checked with
+    /// [`calibration::Calibration::parse`] and
+    /// [`calibration::Calibration::check_panel`]; the model must be
+    /// isotropic, since the factors already hold air loading and the
+    /// supports (as for `tonus fit --calibration`). Returns `Some(None)`
+    /// without the key, None when it is wrong.
+    fn load_calibration(
+        &mut self,
+        t: &Section,
+        panel: Option<&Panel>,
+        model: Option<SpecModel>,
+    ) -> Option<Option<(Arc<calibration::Loaded>, String)>> {
+        let what = "the path of a calibration file made by tonus calibrate, e.g. \"head-14in.calibration.toml\" (relative to the specification's folder)";
+        let Some((line, text)) = self.string(t, "calibration", what, false) else {
+            return if t.get("calibration").is_some() {
+                None
+            } else {
+                Some(None)
+            };
+        };
+        if text.trim().is_empty() {
+            self.problem(
+                Some(line),
+                format!("key 'calibration': must not be empty; {what}"),
+            );
+            return None;
+        }
+        let path = self.dir.join(text.trim());
+        let bytes = match std::fs::read(&path) {
+            Ok(b) => b,
+            Err(e) => {
+                self.problem(
+                    Some(line),
+                    format!(
+                        "key 'calibration': cannot read {} ({e}); give {what}",
+                        path.display()
+                    ),
+                );
+                return None;
+            }
+        };
+        let parsed = std::str::from_utf8(&bytes)
+            .map_err(|_| "not UTF-8 text".to_string())
+            .and_then(calibration::Calibration::parse);
+        let cal = match parsed {
+            Ok(c) => c,
+            Err(reason) => {
+                self.problem(
+                    Some(line),
+                    format!(
+                        "key 'calibration': {} is not a usable calibration file: {reason}; make it again with tonus calibrate",
+                        path.display()
+                    ),
+                );
+                return None;
+            }
+        };
+        if let Some(m) = model.filter(|m| *m != SpecModel::Isotropic) {
+            self.problem(
+                Some(line),
+                format!(
+                    "key 'calibration': a calibration replaces the model (its factors already hold air loading and the supports), so it goes with model = \"isotropic\", not {:?}",
+                    m.name()
+                ),
+            );
+            return None;
+        }
+        if let Some(p) = panel {
+            if let Err(e) = cal.check_panel(p, &path) {
+                self.problem(Some(line), format!("key 'calibration': {e}"));
+                return None;
+            }
+        }
+        Some(Some((
+            Arc::new(calibration::Loaded {
+                path,
+                calibration: cal,
+            }),
+            sha256_hex(&bytes),
+        )))
+    }
+
+    fn load_limits(&mut self, t: &Section, pp: &PanelPart) -> Option<Limits> {
         t.line?;
+        let model = pp.model;
         let what = "a tension with its unit, e.g. \"20N/cm\"";
         let nominal = self.quantity(t, "nominal-tension", what, true, units::parse_tension);
         let lower = self.quantity(t, "lower-tension", what, true, units::parse_tension);
@@ -906,15 +1115,44 @@ impl<'b> Loader<'b> {
         let anisotropy = match t.get("max-anisotropy-percent") {
             None => Some(None),
             Some(_) => match self.positive_number(t, "max-anisotropy-percent", "5") {
-                Some((line, a)) => {
-                    if model == Some(SpecModel::Isotropic) {
+                Some((line, a)) => match model {
+                    Some(m) if !m.measures_anisotropy() => {
                         self.problem(
                             Some(line),
-                            "key 'max-anisotropy-percent': model \"isotropic\" does not measure anisotropy, and no model of a specification does yet; remove the key".into(),
+                            format!("key 'max-anisotropy-percent': model {:?} does not measure anisotropy; write model = \"biaxial\" in [panel] (rectangles), or remove the key", m.name()),
                         );
                         None
+                    }
+                    _ => Some(Some(a)),
+                },
+                None => None,
+            },
+        };
+        let unevenness = match t.get("max-unevenness-percent") {
+            None => Some(None),
+            Some(_) => match self.positive_number(t, "max-unevenness-percent", "2") {
+                Some((line, a)) => {
+                    let shape_ok = pp.is_circle == Some(true) || pp.is_square == Some(true);
+                    let shape_known = pp.is_circle.is_some()
+                        && (pp.is_circle == Some(true) || pp.is_square.is_some());
+                    let fault = if shape_known && !shape_ok {
+                        Some("the unevenness is read from split mode pairs, which only a circle or a square panel has; for a rectangle write model = \"biaxial\" and max-anisotropy-percent".to_string())
                     } else {
-                        Some(Some(a))
+                        match model {
+                            Some(SpecModel::Biaxial) => Some("model \"biaxial\" measures the anisotropy itself; use max-anisotropy-percent".to_string()),
+                            Some(SpecModel::Stiff) => Some("the split of a pair is derived for the membrane, not for the stiff plate; use model \"isotropic\"".to_string()),
+                            _ => None,
+                        }
+                    };
+                    match fault {
+                        Some(why) => {
+                            self.problem(
+                                Some(line),
+                                format!("key 'max-unevenness-percent': {why}"),
+                            );
+                            None
+                        }
+                        None => Some(Some(a)),
                     }
                 }
                 None => None,
@@ -928,6 +1166,7 @@ impl<'b> Loader<'b> {
             lower_n_per_m: lower?.2 .0,
             upper_n_per_m: upper?.2 .0,
             max_anisotropy_percent: anisotropy?,
+            max_unevenness_percent: unevenness?,
             min_quality: min_quality?,
         })
     }
@@ -1228,6 +1467,7 @@ rule = "simple"
                 standard_uncertainty: u,
             }),
             anisotropy_percent: None,
+            unevenness_percent: None,
             grade: Grade::Sound,
             grade_reasons: vec![],
         };
