@@ -637,6 +637,7 @@ fn summary(spec: &Spec, opts: &InspectOptions, entries: Vec<BatchEntry>) -> Batc
             )
         }),
         interrupted: None,
+        unevenness_applies: spec.unevenness_applies(),
         generated: UtcTime::now().to_rfc3339(),
         station: opts.station.clone(),
         operator: opts.operator.clone(),

@@ -334,6 +334,20 @@ impl Spec {
         verdict
     }
 
+    /// The unevenness from split pairs ([`crate::evenness`]) applies: a
+    /// circle or a square panel measured with a membrane model (isotropic
+    /// or air); the same test `max-unevenness-percent` is checked against.
+    pub fn unevenness_applies(&self) -> bool {
+        let shape_ok = match self.panel.shape {
+            Shape::Circle { .. } => true,
+            Shape::Rectangle { width, height } => {
+                // Tolerance: as when the file is read (rounding only).
+                (width.0 - height.0).abs() <= 1e-9 * width.0
+            }
+        };
+        shape_ok && matches!(self.model, SpecModel::Isotropic | SpecModel::Air)
+    }
+
     /// "name version" for messages.
     pub fn spec_label(&self) -> String {
         format!("{} version {}", self.name, self.version)
@@ -1475,6 +1489,306 @@ rule = "simple"
             decision::decide(&i, &s.limits, &s.rule).decision,
             Decision::Pass
         );
+    }
+
+    /// A 14 in head specification; `extra_panel` and `extra_limits` are
+    /// appended to their tables.
+    fn head(model: &str, extra_panel: &str, extra_limits: &str) -> String {
+        format!(
+            r#"[spec]
+name = "head-14"
+version = "1"
+[panel]
+diameter = "14in"
+areal-density = "0.26kg/m2"
+areal-density-u = "5g/m2"
+tap-at = "0.6,30"
+model = "{model}"
+{extra_panel}
+[limits]
+nominal-tension = "3000N/m"
+lower-tension = "2700N/m"
+upper-tension = "3300N/m"
+{extra_limits}
+[decision]
+rule = "guarded"
+"#
+        )
+    }
+
+    fn line_in(text: &str, prefix: &str) -> usize {
+        text.lines().position(|l| l.starts_with(prefix)).unwrap() + 1
+    }
+
+    #[test]
+    fn models_of_fit_are_accepted_by_name() {
+        let s = load(&edit("model", "model = \"biaxial\"")).unwrap();
+        assert_eq!(s.model, SpecModel::Biaxial);
+        assert_eq!(s.model.fit_model(), FitModel::Biaxial);
+        assert_eq!(s.model.name(), "biaxial");
+        let s = load(&edit("model", "model = \"stiff\"")).unwrap();
+        assert_eq!(s.model.fit_model(), FitModel::Stiff);
+        // The aliases of `tonus fit --model` too.
+        let s = load(&edit("model", "model = \"plate\"")).unwrap();
+        assert_eq!(s.model, SpecModel::Stiff);
+        let s = load(&head("air", "", "")).unwrap();
+        assert_eq!(s.model, SpecModel::Air);
+        assert_eq!(s.model.fit_model(), FitModel::AirLoaded);
+        assert_eq!(
+            load(&head("air-loaded", "", "")).unwrap().model,
+            SpecModel::Air
+        );
+        let e = err(&edit("model", "model = \"elastic\""));
+        assert!(
+            e.contains(&format!("line {}: key 'model'", line_no("model")))
+                && e.contains("\"biaxial\""),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn rectangle_models_are_refused_on_a_circle_with_the_line() {
+        for model in ["biaxial", "stiff"] {
+            let text = head(model, "", "");
+            let e = err(&text);
+            assert!(
+                e.contains(&format!(
+                    "line {}: key 'model': \"{model}\" does not apply to a circle",
+                    line_in(&text, "model")
+                )),
+                "{e}"
+            );
+        }
+        let e = err(&head("biaxial", "", ""));
+        assert!(e.contains("max-unevenness-percent"), "{e}");
+    }
+
+    #[test]
+    fn anisotropy_limit_needs_the_biaxial_model() {
+        let text = edit("model", "model = \"biaxial\"")
+            .replace("min-quality = \"fair\"", "max-anisotropy-percent = 4.5");
+        let s = load(&text).unwrap();
+        assert_eq!(s.limits.max_anisotropy_percent, Some(4.5));
+        for model in ["isotropic", "stiff"] {
+            let text = edit("model", &format!("model = \"{model}\""))
+                .replace("min-quality = \"fair\"", "max-anisotropy-percent = 5");
+            let e = err(&text);
+            assert!(
+                e.contains(&format!(
+                    "line {}: key 'max-anisotropy-percent': model \"{model}\" does not measure anisotropy",
+                    line_in(&text, "max-anisotropy-percent")
+                )),
+                "{e}"
+            );
+        }
+        let e = err(&head("air", "", "max-anisotropy-percent = 5"));
+        assert!(e.contains("key 'max-anisotropy-percent'"), "{e}");
+        let e = err(&edit("min-quality", "max-anisotropy-percent = \"5%\""));
+        assert!(
+            e.contains("key 'max-anisotropy-percent': must be a number"),
+            "{e}"
+        );
+        let e = err(&edit("min-quality", "max-anisotropy-percent = 0"));
+        assert!(e.contains("greater than zero"), "{e}");
+    }
+
+    #[test]
+    fn unevenness_limit_applies_to_circles_and_squares() {
+        for model in ["air", "isotropic"] {
+            let s = load(&head(model, "", "max-unevenness-percent = 2")).unwrap();
+            assert_eq!(s.limits.max_unevenness_percent, Some(2.0));
+            assert!(s.unevenness_applies());
+        }
+        // A square screen, the same side written two ways.
+        let square = edit("height", "height = \"0.5m\"")
+            .replace("min-quality = \"fair\"", "max-unevenness-percent = 3");
+        assert_eq!(
+            load(&square).unwrap().limits.max_unevenness_percent,
+            Some(3.0)
+        );
+        // Not a 500 × 400 mm rectangle: no pairs to split.
+        let text = edit("min-quality", "max-unevenness-percent = 3");
+        let e = err(&text);
+        assert!(
+            e.contains(&format!(
+                "line {}: key 'max-unevenness-percent': the unevenness is read from split mode pairs",
+                line_in(&text, "max-unevenness-percent")
+            )) && e.contains("biaxial"),
+            "{e}"
+        );
+        assert!(!load(GOOD).unwrap().unevenness_applies());
+        // Nor with the models that do not give pairs.
+        let e = err(&square.replace("model = \"isotropic\"", "model = \"biaxial\""));
+        assert!(
+            e.contains("key 'max-unevenness-percent'") && e.contains("max-anisotropy-percent"),
+            "{e}"
+        );
+        let e = err(&square.replace("model = \"isotropic\"", "model = \"stiff\""));
+        assert!(e.contains("key 'max-unevenness-percent'"), "{e}");
+        let e = err(&head("air", "", "max-unevenness-percent = -2"));
+        assert!(e.contains("key 'max-unevenness-percent'"), "{e}");
+    }
+
+    /// A calibration of the 14 in head at 3000 N/m with every mode 2 %
+    /// below the ideal membrane, as `tonus calibrate` would write it.
+    fn calibration_text(diameter_m: f64, sigma: f64) -> String {
+        let shape = Shape::Circle {
+            radius: Meters(diameter_m / 2.0),
+        };
+        let c = (3000.0f64 / sigma).sqrt();
+        let modes: Vec<(u32, u32, f64)> = [(0, 1), (1, 1), (2, 1), (0, 2), (3, 1), (1, 2)]
+            .iter()
+            .map(|&(m, n)| (m, n, 0.98 * c * calibration::ideal_factor(&shape, m, n)))
+            .collect();
+        let refs = [calibration::Reference {
+            file: PathBuf::from("ref.wav"),
+            sha256: sha256_hex(b"ref"),
+            modes,
+        }];
+        calibration::Calibration::from_references(shape, sigma, 3000.0, 30.0, &refs, "air")
+            .unwrap()
+            .to_toml()
+    }
+
+    #[test]
+    fn calibration_is_loaded_relative_to_the_spec_and_checked() {
+        let dir = tempfile::tempdir().unwrap();
+        let d = dir.path();
+        std::fs::create_dir(d.join("cal")).unwrap();
+        let cal = calibration_text(14.0 * 0.0254, 0.26);
+        std::fs::write(d.join("cal/head.calibration.toml"), &cal).unwrap();
+        let spec_path = d.join("head.spec.toml");
+        let write_and_load = |text: &str| {
+            std::fs::write(&spec_path, text).unwrap();
+            Spec::from_file(&spec_path)
+        };
+        let good = head(
+            "isotropic",
+            "calibration = \"cal/head.calibration.toml\"",
+            "",
+        );
+        let s = write_and_load(&good).unwrap();
+        assert_eq!(
+            s.calibration_sha256.as_deref(),
+            Some(sha256_hex(cal.as_bytes()).as_str())
+        );
+        let loaded = s.calibration.as_ref().unwrap();
+        assert_eq!(loaded.path, d.join("cal/head.calibration.toml"));
+        assert_eq!(loaded.calibration.modes.len(), 6);
+
+        let cal_line = line_in(&good, "calibration");
+        let expect = |text: &str, want: &str| {
+            let e = write_and_load(text).unwrap_err().to_string();
+            assert!(
+                e.contains(&format!("line {cal_line}: key 'calibration'")) && e.contains(want),
+                "{want}: {e}"
+            );
+        };
+        // Missing file.
+        expect(
+            &head(
+                "isotropic",
+                "calibration = \"cal/none.calibration.toml\"",
+                "",
+            ),
+            "cannot read",
+        );
+        // Broken file.
+        std::fs::write(d.join("cal/broken.calibration.toml"), "schema = 3\n[").unwrap();
+        expect(
+            &head(
+                "isotropic",
+                "calibration = \"cal/broken.calibration.toml\"",
+                "",
+            ),
+            "not a usable calibration file",
+        );
+        // Another head's calibration.
+        std::fs::write(
+            d.join("cal/13in.calibration.toml"),
+            calibration_text(13.0 * 0.0254, 0.26),
+        )
+        .unwrap();
+        expect(
+            &head(
+                "isotropic",
+                "calibration = \"cal/13in.calibration.toml\"",
+                "",
+            ),
+            "was made for a circle",
+        );
+        // A calibration replaces the air model.
+        expect(
+            &head("air", "calibration = \"cal/head.calibration.toml\"", ""),
+            "model = \"isotropic\"",
+        );
+        expect(
+            &head("isotropic", "calibration = 3", ""),
+            "must be a string",
+        );
+    }
+
+    #[test]
+    fn calibrated_uncertainty_leaves_out_the_areal_density() {
+        // 1 % from the reference, 0.5 % from the factors, 3 N/m from the
+        // fit at 3000 N/m: √(3² + 30² + 15²) = √1134 N/m.
+        let u = Spec::calibrated_tension_uncertainty(
+            &Estimate {
+                value: 3000.0,
+                standard_uncertainty: 3.0,
+            },
+            &calibration::CalibrationTerm {
+                u_rel_reference: 0.01,
+                u_rel_factors: 0.005,
+                modes: 6,
+            },
+        );
+        // Tolerance: rounding only.
+        assert!((u - 1134f64.sqrt()).abs() < 1e-9, "{u}");
+    }
+
+    /// A synthetic screen with Ty 5 % above Tx: the biaxial specification
+    /// passes it with a 5.5 % limit and fails it with 4 %, the anisotropy
+    /// entering the decision with its own uncertainty.
+    #[test]
+    fn biaxial_spec_decides_the_anisotropy_of_a_synthetic_screen() {
+        use crate::pipeline::{measure, FitOptions};
+        use crate::recording::Recording;
+        use crate::synth::{synthesise, SynthConfig};
+        let text = edit("model", "model = \"biaxial\"")
+            .replace("min-quality = \"fair\"", "max-anisotropy-percent = 5.5");
+        let s = load(&text).unwrap();
+        let panel = s.panel();
+        let mut cfg = SynthConfig::new(
+            panel.shape,
+            panel.areal_density.unwrap(),
+            crate::units::NewtonsPerMeter(1950.0),
+            panel.tap.unwrap(),
+        );
+        cfg.tension_y = Some(crate::units::NewtonsPerMeter(2050.0));
+        let rec = Recording::from_samples(
+            Path::new("biaxial.wav"),
+            synthesise(&cfg).unwrap(),
+            f64::from(cfg.sample_rate_hz),
+        );
+        let opts = FitOptions {
+            model: s.model.fit_model(),
+            ..FitOptions::default()
+        };
+        let m = measure(&rec, &panel, &opts).unwrap();
+        let input = s.decision_input(&m);
+        // 100·(1950 − 2050)/2000 = −5 %.
+        let a = input.anisotropy_percent.unwrap();
+        assert!((a.value + 5.0).abs() < 0.3, "{a:?}");
+        assert!(a.standard_uncertainty > 0.0 && a.standard_uncertainty < 0.3);
+        let v = s.decide(&m);
+        assert_eq!(v.decision, Decision::Pass, "{:?}", v.reasons);
+        assert_eq!(v.anisotropy.as_ref().unwrap().decision, "pass");
+        let mut strict = s.clone();
+        strict.limits.max_anisotropy_percent = Some(4.0);
+        let v = strict.decide(&m);
+        assert_eq!(v.decision, Decision::Fail, "{:?}", v.reasons);
+        assert!(v.reasons.iter().any(|r| r.contains("exceeds 4 %")));
     }
 
     /// End to end: a synthetic tap of the specification's screen at

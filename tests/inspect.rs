@@ -464,11 +464,11 @@ fn killed_mid_batch_keeps_every_completed_row() {
     let csv_path = out.join("inspect.csv");
     if csv_path.exists() {
         let mut r = csv::Reader::from_path(&csv_path).unwrap();
-        assert_eq!(r.headers().unwrap().len(), 16);
+        assert_eq!(r.headers().unwrap().len(), 21);
         let recs: Vec<csv::StringRecord> = r.records().map(|x| x.unwrap()).collect();
         assert!(recs.len() <= rows.len());
         for rec in &recs {
-            assert_eq!(rec.len(), 16);
+            assert_eq!(rec.len(), 21);
             assert_eq!(&rec[11], "pass");
         }
     }

@@ -131,6 +131,9 @@ pub struct BatchSummary {
     /// Set when a signal stopped the batch before every recording was
     /// decided.
     pub interrupted: Option<Interruption>,
+    /// The unevenness from split pairs applies: a circle or a square
+    /// panel, measured with a membrane model (isotropic or air).
+    pub unevenness_applies: bool,
     /// When the report was made (RFC 3339).
     pub generated: String,
     /// Station name, if given.
@@ -946,13 +949,15 @@ fn pictures(s: &BatchSummary) -> std::result::Result<Pictures, String> {
     if !aniso.is_empty() {
         let amax = aniso.iter().fold(0.0f64, |a, &b| a.max(b.abs()));
         let lim = s.max_anisotropy_percent.unwrap_or(amax.max(1.0));
+        // Labels alternate between two rows in this order: the mean sits
+        // in the other row from the limits and from 0.
         let mut marks = vec![(0.0, "0 %".to_string(), NOMINAL, true)];
+        if let Some(m) = stats::mean(&aniso) {
+            marks.push((m, format!("mean {m:.2} %"), CENTRE, true));
+        }
         if let Some(m) = s.max_anisotropy_percent {
             marks.push((m, format!("limit +{m} %"), LIMIT, false));
             marks.push((-m, format!("limit −{m} %"), LIMIT, false));
-        }
-        if let Some(m) = stats::mean(&aniso) {
-            marks.push((m, format!("mean {m:.2} %"), CENTRE, true));
         }
         let png = histogram_png(&HistogramPicture {
             title: format!("Anisotropy — {} v{}", s.spec_name, s.spec_version),
@@ -1284,7 +1289,17 @@ fn sections(s: &BatchSummary, pics: &Pictures) -> Vec<(String, String)> {
         .filter(|e| e.measured() && e.unevenness_percent.is_some())
         .collect();
     let unresolved = pts.len() - uneven.len();
-    if uneven.is_empty() {
+    if uneven.is_empty() && !s.unevenness_applies {
+        let _ = writeln!(
+            b,
+            "The unevenness is read from split mode pairs of a circle or a square panel measured with the isotropic or air model; it does not apply to this specification{}.",
+            if s.model == "biaxial" {
+                " (the anisotropy above is its measure of uneven tension)"
+            } else {
+                ""
+            }
+        );
+    } else if uneven.is_empty() {
         let _ = writeln!(
             b,
             "No measured recording resolved a split mode pair, so there is no unevenness distribution for this batch (the unevenness is read from split pairs of a circle or a square panel).{}",
@@ -1888,6 +1903,7 @@ mod tests {
         e.push(entry("even.wav", "pass", Some(2010.0)));
         let mut s = summary(e);
         s.max_unevenness_percent = Some(2.5);
+        s.unevenness_applies = true;
         s.interrupted = Some(Interruption {
             signal: "SIGINT".into(),
             signal_number: 2,
