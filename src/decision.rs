@@ -35,7 +35,10 @@
 //!   decision rests on the tension (and anisotropy) alone and the reasons
 //!   say "evenness not measurable: no split pair resolved". An even head
 //!   leaves its (1,n) pairs unsplit, so refusing those would refuse every
-//!   good head; the reason keeps the gap visible in every record.
+//!   good head; the reason keeps the gap visible in every record. But a
+//!   pair that was found and could not be evaluated
+//!   ([`DecisionInput::unevenness_problem`]) is evidence of unevenness of
+//!   unknown size: that recording is [`Decision::NotMeasured`].
 //! - The margin is the signed distance from the measured tension to the
 //!   nearest tolerance limit: positive inside the tolerance, negative
 //!   outside; also given as a percentage of the tolerance width H − L.
@@ -155,6 +158,10 @@ pub struct DecisionInput {
     /// Unevenness (spread 2|ε| of the principal tensions) and its standard
     /// uncertainty, percent, when a split pair was resolved.
     pub unevenness_percent: Option<Estimate>,
+    /// Why the unevenness could not be judged although a split pair was
+    /// found (e.g. a member without an uncertainty); with an unevenness
+    /// limit such a recording is not measured rather than passed.
+    pub unevenness_problem: Option<String>,
     /// Quality grade of the measurement.
     pub grade: Grade,
     /// The grade's reasons (quoted when the grade is too poor to decide).
@@ -476,6 +483,15 @@ pub fn decide(input: &DecisionInput, limits: &Limits, rule: &DecisionRule) -> Ve
     }
     if let Some(s_max) = limits.max_unevenness_percent {
         match input.unevenness_percent {
+            None if input.unevenness_problem.is_some() => {
+                return not_measured(
+                    verdict,
+                    format!(
+                        "the unevenness limit {s_max} % cannot be judged: {}; tap again (off the axes, a longer recording)",
+                        input.unevenness_problem.clone().unwrap_or_default()
+                    ),
+                )
+            }
             None => verdict.reasons.push(format!(
                 "{EVENNESS_NOT_MEASURABLE} (the split, if any, is below what this recording resolves; tap off the axes so both members of a pair sound); decided without the unevenness limit {s_max} %"
             )),
@@ -579,6 +595,7 @@ mod tests {
             }),
             anisotropy_percent: None,
             unevenness_percent: None,
+            unevenness_problem: None,
             grade,
             grade_reasons: vec![],
         }
@@ -843,6 +860,14 @@ mod tests {
         // Without the limit nothing is said about evenness.
         let v = decide(&with(None), &limits(), &g);
         assert!(v.reasons.iter().all(|x| !x.contains("evenness")));
+        // A pair found but not evaluated is not passed.
+        let mut i = with(None);
+        i.unevenness_problem = Some("the (1,1) pair has a member without an uncertainty".into());
+        let v = decide(&i, &lim, &s);
+        let Decision::NotMeasured { reason } = &v.decision else {
+            panic!("{v:?}")
+        };
+        assert!(reason.contains("(1,1) pair"), "{reason}");
         // A non-finite value cannot be judged.
         let v = decide(&with(Some((f64::NAN, 0.1))), &lim, &g);
         assert_eq!(v.decision.name(), "not_measured");

@@ -297,6 +297,11 @@ impl Spec {
                 value: e.spread_pct,
                 standard_uncertainty: 2.0 * e.epsilon_u_pct,
             }),
+            unevenness_problem: if m.evenness.is_none() {
+                unevaluated_pairs(m)
+            } else {
+                None
+            },
             grade: m.quality.grade,
             grade_reasons: m.quality.reasons.clone(),
         }
@@ -352,6 +357,38 @@ impl Spec {
     pub fn spec_label(&self) -> String {
         format!("{} version {}", self.name, self.version)
     }
+}
+
+/// The split pairs that would give the unevenness ((1,n) on a circle,
+/// (m,n)/(n,m) with m ≠ n on a square panel) but have a member without a
+/// finite standard uncertainty (an FFT peak that was not refined), so
+/// that [`crate::evenness`] leaves them out; None when there are none.
+fn unevaluated_pairs(m: &Measurement) -> Option<String> {
+    let bad: Vec<String> = m
+        .modes
+        .iter()
+        .filter(|r| r.degeneracy >= 2)
+        .filter(|r| match m.panel.shape {
+            Shape::Circle { .. } => r.m == 1,
+            Shape::Rectangle { .. } => r.m != r.n,
+        })
+        .filter_map(|r| {
+            let p = r.pair?;
+            let ok = |u: f64| u.is_finite() && u >= 0.0;
+            (!(ok(p.lower.frequency_u_hz) && ok(p.upper.frequency_u_hz))).then(|| {
+                format!(
+                    "{} split into {:.2} and {:.2} Hz",
+                    r.labels, p.lower.frequency_hz, p.upper.frequency_hz
+                )
+            })
+        })
+        .collect();
+    (!bad.is_empty()).then(|| {
+        format!(
+            "a split pair was found ({}) but a member has no frequency uncertainty, so its unevenness could not be computed",
+            bad.join("; ")
+        )
+    })
 }
 
 /// 1-based line number of byte `offset` in `bytes`.
@@ -1482,6 +1519,7 @@ rule = "simple"
             }),
             anisotropy_percent: None,
             unevenness_percent: None,
+            unevenness_problem: None,
             grade: Grade::Sound,
             grade_reasons: vec![],
         };
