@@ -1010,7 +1010,9 @@ fn pictures(s: &BatchSummary) -> std::result::Result<Pictures, String> {
                     .unwrap_or_default()
             ),
             x_label: "unevenness, tightest over slackest direction − 1 [%]",
-            view: value_view(&uneven, 0.0, lim),
+            // From 0 to the limit or the largest value: the limit is
+            // one-sided, so a tolerance "width" says little here.
+            view: value_view(&uneven, 0.0, lim.max(vmax)),
             anchor: (0.0, lim),
             bin_count: bin_count(uneven.len()),
             x_digits: 1,
