@@ -36,9 +36,31 @@
 //! when done, which is atomic on one file system; the stability test
 //! covers copies that do not.
 //!
+//! # Stopping: SIGINT and SIGTERM
+//!
+//! With [`stop_on_signals`] installed (the binary does so for `inspect`),
+//! the first SIGINT (Ctrl-C) or SIGTERM asks the batch to stop: no new
+//! recording is started, the recordings in flight are decided and
+//! recorded, the CSV and JSON Lines files are published, and the batch
+//! report of everything decided is written, saying that the run was
+//! interrupted and how many recordings of how many were decided. The exit
+//! status is then 128 + the signal number (130 for SIGINT, 143 for
+//! SIGTERM), whatever the decisions, so that a script never takes a cut
+//! batch for a whole one; the decisions themselves are in the outputs. A
+//! batch whose every recording was decided before the signal came exits
+//! as usual. A second signal ends the process at once (status 128 + the
+//! signal): the history keeps every row already committed, and the CSV,
+//! JSON Lines and report are as last published.
+//!
 //! CSV columns: `file,sha256,time,tension_n_per_m,tension_u_n_per_m,
 //! expanded_u_n_per_m,wave_speed_m_per_s,wave_speed_u_m_per_s,modes_used,
-//! rms_residual_cents,grade,decision,rule,margin_n_per_m,reasons,error`.
+//! rms_residual_cents,grade,decision,rule,margin_n_per_m,reasons,error,
+//! anisotropy_percent,anisotropy_u_percent,unevenness_percent,
+//! unevenness_u_percent,calibration_sha256` — the anisotropy (biaxial
+//! model, 100·(Tx − Ty)/((Tx + Ty)/2)) and the unevenness (the spread
+//! 2|ε| from resolved split pairs, circle or square panel) with their
+//! standard uncertainties in percent, empty when not measured; the
+//! SHA-256 of the specification's calibration file, empty without one.
 
 use crate::commands::Outcome;
 use crate::decision::Decision;
@@ -56,7 +78,7 @@ use std::cell::RefCell;
 use std::collections::{HashMap, HashSet};
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::atomic::{AtomicI32, AtomicU64, Ordering};
 use std::time::{Duration, Instant, SystemTime};
 
 /// Recordings decided together, and between two publications of the CSV
@@ -71,6 +93,77 @@ pub const WATCH_INTERVAL_DEFAULT_S: f64 = 0.5;
 pub const WATCH_INTERVAL_MIN_S: f64 = 0.05;
 /// Longest poll interval allowed, s.
 pub const WATCH_INTERVAL_MAX_S: f64 = 10.0;
+
+/// The signal that asked the batch to stop (0: none yet).
+static STOP_SIGNAL: AtomicI32 = AtomicI32::new(0);
+
+/// Slice of the watch mode's wait between two listings, so that a stop
+/// request is seen within this time.
+const STOP_POLL: Duration = Duration::from_millis(50);
+
+extern "C" fn on_stop_signal(sig: libc::c_int) {
+    // Only async-signal-safe work here: an atomic swap, and `_exit` on
+    // the second signal.
+    if STOP_SIGNAL.swap(sig, Ordering::SeqCst) != 0 {
+        // SAFETY: `_exit` is async-signal-safe and ends the process
+        // without running destructors or atexit handlers.
+        unsafe { libc::_exit(128 + sig) };
+    }
+}
+
+/// Makes SIGINT and SIGTERM a graceful stop of [`inspect`] and [`watch`]
+/// (see the module notes): the first one sets a flag the batch polls, a
+/// second one ends the process at once.
+///
+/// # Errors
+/// [`TonusError::Io`] when the handler cannot be installed.
+pub fn stop_on_signals() -> Result<()> {
+    for sig in [libc::SIGINT, libc::SIGTERM] {
+        // SAFETY: the action is zero-initialised (a valid `sigaction`),
+        // its mask emptied with `sigemptyset`, and the handler only does
+        // async-signal-safe work.
+        let rc = unsafe {
+            let mut sa: libc::sigaction = std::mem::zeroed();
+            sa.sa_sigaction = on_stop_signal as extern "C" fn(libc::c_int) as libc::sighandler_t;
+            libc::sigemptyset(&mut sa.sa_mask);
+            sa.sa_flags = libc::SA_RESTART;
+            libc::sigaction(sig, &sa, std::ptr::null_mut())
+        };
+        if rc != 0 {
+            return Err(TonusError::Io {
+                path: PathBuf::from("signal handler"),
+                reason: format!(
+                    "cannot install the handler for signal {sig}: {}",
+                    std::io::Error::last_os_error()
+                ),
+            });
+        }
+    }
+    Ok(())
+}
+
+/// The signal that asked for a stop, if any.
+fn stop_requested() -> Option<i32> {
+    match STOP_SIGNAL.load(Ordering::SeqCst) {
+        0 => None,
+        s => Some(s),
+    }
+}
+
+/// The usual name of a stop signal.
+fn signal_name(sig: i32) -> String {
+    match sig {
+        libc::SIGINT => "SIGINT".into(),
+        libc::SIGTERM => "SIGTERM".into(),
+        other => format!("signal {other}"),
+    }
+}
+
+/// Exit status of a batch cut short by signal `sig`: 128 + sig (the
+/// shell's convention; 130 for SIGINT).
+fn interrupted_exit(sig: i32) -> u8 {
+    u8::try_from(128 + sig).unwrap_or(130)
+}
 
 /// Where the batch writes.
 #[derive(Debug, Clone)]
@@ -101,9 +194,11 @@ pub enum Refinement {
     /// with the refinement when its decision is not settled: when moving
     /// the tension (or anisotropy) by [`NEAR_LIMIT_FIT_U`] times the
     /// fit's own standard uncertainty either way changes the decision, or
-    /// it is not measured. The refinement moves a tension by about one
-    /// such uncertainty, so it cannot change the decision of a settled
-    /// recording; each record says which method it carries.
+    /// it is not measured, or the specification limits the unevenness
+    /// (which needs the split pairs only the refinement resolves). The
+    /// refinement moves a tension by about one such uncertainty, so it
+    /// cannot change the decision of a settled recording; each record says
+    /// which method it carries.
     #[default]
     NearLimits,
     /// Never: FFT peaks only.
@@ -142,10 +237,16 @@ impl Refinement {
 pub const NEAR_LIMIT_FIT_U: f64 = 10.0;
 
 /// Whether `m`'s decision under `spec` is settled ([`Refinement::NearLimits`]):
-/// it has a tension, is decided (not "not measured"), and keeps its
-/// decision when the tension, and the anisotropy if any, move by
-/// [`NEAR_LIMIT_FIT_U`] of their fit uncertainties either way.
+/// the specification sets no unevenness limit, and the measurement has a
+/// tension, is decided (not "not measured"), and keeps its decision when
+/// the tension, and the anisotropy if any, move by [`NEAR_LIMIT_FIT_U`]
+/// of their fit uncertainties either way.
 pub fn decision_is_settled(spec: &Spec, m: &pipeline::Measurement) -> bool {
+    // Unevenness comes from split pairs, which only the refinement
+    // resolves below the FFT's resolution: a limit on it always refines.
+    if spec.limits.max_unevenness_percent.is_some() {
+        return false;
+    }
     let input = spec.decision_input(m);
     let base = spec.decide(m).decision;
     if matches!(base, Decision::NotMeasured { .. }) {
@@ -308,7 +409,7 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
                     refine,
                     ..Default::default()
                 },
-                calibration: None,
+                calibration: spec.calibration.clone(),
             };
             PLANNER.with(|p| pipeline::measure_with(&rec, &panel, &fit_opts, &mut p.borrow_mut()))
         };
@@ -334,7 +435,16 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
             );
             o.insert(
                 "spec".into(),
-                serde_json::json!({"name": spec.name, "version": spec.version, "sha256": spec.hash}),
+                serde_json::json!({
+                    "name": spec.name,
+                    "version": spec.version,
+                    "sha256": spec.hash,
+                    "model": spec.model.name(),
+                    "calibration": spec.calibration.as_ref().map(|c| serde_json::json!({
+                        "file": c.path.display().to_string(),
+                        "sha256": spec.calibration_sha256,
+                    })),
+                }),
             );
             o.insert(
                 "recording_sha256".into(),
@@ -363,11 +473,12 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
             nearest_limit: verdict
                 .margin
                 .map(|mg| format!("{:?}", mg.nearest_limit).to_lowercase()),
-            anisotropy_percent: m.biaxial.as_ref().map(|b| b.anisotropy_percent.value),
-            anisotropy_u_percent: m
-                .biaxial
-                .as_ref()
-                .map(|b| b.anisotropy_percent.standard_uncertainty),
+            anisotropy_percent: input.anisotropy_percent.map(|a| a.value),
+            anisotropy_u_percent: input.anisotropy_percent.map(|a| a.standard_uncertainty),
+            unevenness_percent: input.unevenness_percent.map(|e| e.value),
+            unevenness_u_percent: input.unevenness_percent.map(|e| e.standard_uncertainty),
+            anisotropy_decision: verdict.anisotropy.as_ref().map(|j| j.decision.to_string()),
+            unevenness_decision: verdict.unevenness.as_ref().map(|j| j.decision.to_string()),
             grade: Some(m.quality.grade.name().to_string()),
             reason: match &verdict.decision {
                 Decision::NotMeasured { reason } => Some(reason.clone()),
@@ -467,7 +578,7 @@ fn frequency_method(refined: bool) -> &'static str {
     }
 }
 
-const CSV_HEADER: [&str; 17] = [
+const CSV_HEADER: [&str; 22] = [
     "file",
     "sha256",
     "time",
@@ -484,6 +595,11 @@ const CSV_HEADER: [&str; 17] = [
     "margin_n_per_m",
     "reasons",
     "error",
+    "anisotropy_percent",
+    "anisotropy_u_percent",
+    "unevenness_percent",
+    "unevenness_u_percent",
+    "calibration_sha256",
     "frequency_method",
 ];
 
@@ -525,6 +641,12 @@ fn csv_row(
         f(d["margin"]["n_per_m"].as_f64()),
         r.map(|r| r.reasons.join("; ")).unwrap_or_default(),
         error.unwrap_or_default().to_string(),
+        f(r.and_then(|r| r.anisotropy_percent)),
+        f(r.and_then(|r| r.anisotropy_u_percent)),
+        f(r.and_then(|r| r.unevenness_percent)),
+        f(r.and_then(|r| r.unevenness_u_percent)),
+        r.and_then(|r| r.calibration_sha256.clone())
+            .unwrap_or_default(),
         json["frequency_method"]
             .as_str()
             .unwrap_or_default()
@@ -603,17 +725,27 @@ impl<'a> Writer<'a> {
         Ok(())
     }
 
-    /// Last publication, the batch report; the exit status.
-    fn finish(mut self) -> Result<(u8, StageTiming)> {
+    /// Last publication, the batch report; the exit status (128 + the
+    /// signal when `interrupted`).
+    fn finish(
+        mut self,
+        interrupted: Option<report::batch::Interruption>,
+    ) -> Result<(u8, StageTiming)> {
         let t = Instant::now();
         self.csv.finish()?;
         self.jsonl.finish()?;
         self.timing.flush_s += t.elapsed().as_secs_f64();
         let t = Instant::now();
-        let summary = summary(self.spec, self.opts, std::mem::take(&mut self.entries));
+        let exit = match &interrupted {
+            Some(i) => interrupted_exit(i.signal_number),
+            None if self.all_pass => 0,
+            None => 1,
+        };
+        let mut summary = summary(self.spec, self.opts, std::mem::take(&mut self.entries));
+        summary.interrupted = interrupted;
         report::batch::write_batch_report(&self.opts.out, &summary)?;
         self.timing.report_s = t.elapsed().as_secs_f64();
-        Ok((if self.all_pass { 0 } else { 1 }, self.timing))
+        Ok((exit, self.timing))
     }
 }
 
@@ -630,6 +762,16 @@ fn summary(spec: &Spec, opts: &InspectOptions, entries: Vec<BatchEntry>) -> Batc
         lower_n_per_m: spec.limits.lower_n_per_m,
         upper_n_per_m: spec.limits.upper_n_per_m,
         max_anisotropy_percent: spec.limits.max_anisotropy_percent,
+        max_unevenness_percent: spec.limits.max_unevenness_percent,
+        calibration: spec.calibration.as_ref().map(|c| {
+            format!(
+                "{} (SHA-256 {})",
+                c.path.display(),
+                spec.calibration_sha256.as_deref().unwrap_or("")
+            )
+        }),
+        interrupted: None,
+        unevenness_applies: spec.unevenness_applies(),
         generated: UtcTime::now().to_rfc3339(),
         station: opts.station.clone(),
         operator: opts.operator.clone(),
@@ -658,7 +800,9 @@ fn progress_bar(len: usize, wanted: bool) -> ProgressBar {
 }
 
 /// Decides every recording, printing one line each through `emit` (in
-/// batch order, as they are decided); exit 0 if all pass, 1 otherwise.
+/// batch order, as they are decided); exit 0 if all pass, 1 otherwise,
+/// 128 + the signal when stopped by SIGINT or SIGTERM before every
+/// recording was decided (see the module notes).
 ///
 /// # Errors
 /// An unusable output folder or history database (a bad recording is a
@@ -691,12 +835,20 @@ pub fn inspect_timed(
         let (bar_w, counters) = (&bar, &counters);
         scope.spawn(move || {
             for chunk in files.chunks(FLUSH_EVERY) {
+                if stop_requested().is_some() {
+                    return;
+                }
+                // After a stop request no recording is started; those in
+                // flight are finished and recorded.
                 let items: Vec<Item> = chunk
                     .par_iter()
-                    .map(|f| {
+                    .filter_map(|f| {
+                        if stop_requested().is_some() {
+                            return None;
+                        }
                         let it = decide_one(spec, f, opts, counters);
                         bar_w.inc(1);
-                        it
+                        Some(it)
                     })
                     .collect();
                 // The writer stopped on an error: stop deciding.
@@ -715,7 +867,28 @@ pub fn inspect_timed(
         Ok(())
     })?;
     bar.finish_and_clear();
-    let (exit, mut timing) = writer.finish()?;
+    let decided = writer.entries.len();
+    let interrupted = stop_requested()
+        .filter(|_| decided < files.len())
+        .map(|sig| report::batch::Interruption {
+            signal: signal_name(sig),
+            signal_number: sig,
+            decided,
+            total: Some(files.len()),
+        });
+    let stderr = interrupted
+        .as_ref()
+        .map(|i| {
+            format!(
+                "inspect interrupted by {}: {} of {} recording(s) decided; outputs and report in {}\n",
+                i.signal,
+                decided,
+                files.len(),
+                opts.out.display()
+            )
+        })
+        .unwrap_or_default();
+    let (exit, mut timing) = writer.finish(interrupted)?;
     timing.read_s = counters.read_ns.load(Ordering::Relaxed) as f64 * 1e-9;
     let secs = |c: &AtomicU64| c.load(Ordering::Relaxed) as f64 * 1e-9;
     timing.decode_s = secs(&counters.decode_ns);
@@ -725,7 +898,7 @@ pub fn inspect_timed(
     Ok((
         Outcome {
             stdout: String::new(),
-            stderr: String::new(),
+            stderr,
             exit,
         },
         timing,
@@ -760,7 +933,9 @@ fn wav_listing(dir: &Path) -> Result<Vec<(PathBuf, Signature)>> {
 /// neither). Appends to the history; the CSV and JSON Lines files are
 /// published after every recording; the batch report of what was decided
 /// is written when the watch ends. Exit 0 if every recording passed (or
-/// none landed), 1 otherwise.
+/// none landed), 1 otherwise; 128 + the signal when stopped by SIGINT
+/// (Ctrl-C) or SIGTERM, after the recording in flight is recorded and the
+/// report written (see the module notes).
 ///
 /// # Errors
 /// A folder that does not exist or cannot be listed; an unusable output
@@ -794,26 +969,44 @@ pub fn watch(
                 format!("; stops after {n} recording(s) or {} s", t.as_secs_f64()),
             (Some(n), None) => format!("; stops after {n} recording(s)"),
             (None, Some(t)) => format!("; stops after {} s", t.as_secs_f64()),
-            (None, None) => "; stop with Ctrl-C".into(),
+            (None, None) => "; stop with Ctrl-C (the report is written)".into(),
         }
     ));
     let mut decided = 0usize;
     let stop_reason = loop {
+        if let Some(sig) = stop_requested() {
+            break format!("stopped by {}", signal_name(sig));
+        }
         if w.limit.is_some_and(|n| decided >= n) {
-            break "limit reached";
+            break "limit reached".to_string();
         }
         let remaining = match w.timeout {
             Some(t) => match t.checked_sub(start.elapsed()) {
                 Some(r) if !r.is_zero() => Some(r),
-                _ => break "time is up",
+                _ => break "time is up".to_string(),
             },
             None => None,
         };
-        std::thread::sleep(remaining.map_or(w.interval, |r| r.min(w.interval)));
+        // Wait in short slices so that a stop request is seen promptly;
+        // the wait is bounded by the poll interval.
+        let wait_until = Instant::now() + remaining.map_or(w.interval, |r| r.min(w.interval));
+        while stop_requested().is_none() {
+            let left = wait_until.saturating_duration_since(Instant::now());
+            if left.is_zero() {
+                break;
+            }
+            std::thread::sleep(left.min(STOP_POLL));
+        }
+        if stop_requested().is_some() {
+            continue;
+        }
         let listing = wav_listing(&w.dir)?;
         let present: HashSet<&PathBuf> = listing.iter().map(|(p, _)| p).collect();
         seen.retain(|p, _| present.contains(p));
         for (path, sig) in &listing {
+            if stop_requested().is_some() {
+                break;
+            }
             if done.contains(path) || w.limit.is_some_and(|n| decided >= n) {
                 continue;
             }
@@ -831,7 +1024,13 @@ pub fn watch(
             decided += 1;
         }
     };
-    let (exit, _) = writer.finish()?;
+    let interrupted = stop_requested().map(|sig| report::batch::Interruption {
+        signal: signal_name(sig),
+        signal_number: sig,
+        decided,
+        total: None,
+    });
+    let (exit, _) = writer.finish(interrupted)?;
     note(&format!(
         "watch ended ({stop_reason}): {decided} recording(s) decided; report in {}",
         opts.out.join(report::batch::HTML_NAME).display()

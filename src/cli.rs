@@ -414,23 +414,22 @@ pub fn fit_options(
     model: Option<&str>,
     input: &InputArgs,
 ) -> Result<FitOptions> {
-    let model = match (free_aspect, model) {
-        (true, None) | (false, Some("free-aspect")) => FitModel::FreeAspect,
-        (false, Some("biaxial")) => FitModel::Biaxial,
-        (false, Some("stiff")) | (false, Some("plate")) => FitModel::Stiff,
-        (true, Some("biaxial")) => {
+    let named = model.map(|m| (m, FitModel::from_name(m)));
+    let model = match (free_aspect, named) {
+        (true, None) | (false, Some((_, Some(FitModel::FreeAspect)))) => FitModel::FreeAspect,
+        (true, Some((_, Some(FitModel::Biaxial)))) => {
             return Err(TonusError::Panel(
                 "biaxial tension and a free aspect ratio cannot be fitted together: on a rectangle the tensions and the sides enter only as Tx/(σ·Lx²) and Ty/(σ·Ly²); measure the sides and fit --model biaxial, or assume isotropic tension and use --free-aspect".into(),
             ))
         }
-        (false, None) | (false, Some("isotropic")) => FitModel::Isotropic,
-        (false, Some("air")) | (false, Some("air-loaded")) => FitModel::AirLoaded,
-        (true, Some(m)) => {
+        (false, None) => FitModel::Isotropic,
+        (false, Some((_, Some(m)))) => m,
+        (true, Some((m, Some(_)))) => {
             return Err(TonusError::Panel(format!(
                 "--free-aspect and --model {m} cannot be combined; choose one"
             )))
         }
-        (false, Some(other)) => {
+        (_, Some((other, None))) => {
             return Err(TonusError::BadQuantity {
                 key: "--model".into(),
                 value: other.into(),

@@ -23,9 +23,22 @@
 //! - A measurement without a tension, with a non-finite value or
 //!   uncertainty, or graded below the limits' `min_quality`, is
 //!   [`Decision::NotMeasured`] with the reason — never a pass.
-//! - An optional anisotropy limit |a| ≤ a_max (percent) is judged under the
-//!   same rule with its own uncertainty; the verdict is the worse of the
-//!   two judgements (fail before indeterminate before pass).
+//! - An optional anisotropy limit |a| ≤ a_max (percent, biaxial model) and
+//!   an optional unevenness limit s ≤ s_max (percent, the spread 2|ε| of
+//!   [`crate::evenness::Evenness::spread_pct`]) are each judged under the
+//!   same rule with their own uncertainty (guard band k·u of that
+//!   quantity); the verdict is the worst of the judgements (fail before
+//!   indeterminate before pass). A limited anisotropy that was not
+//!   measured makes the recording [`Decision::NotMeasured`] (the model
+//!   always measures it when the fit succeeds). A limited unevenness that
+//!   could not be measured — no split pair resolved — does not: the
+//!   decision rests on the tension (and anisotropy) alone and the reasons
+//!   say "evenness not measurable: no split pair resolved". An even head
+//!   leaves its (1,n) pairs unsplit, so refusing those would refuse every
+//!   good head; the reason keeps the gap visible in every record. But a
+//!   pair that was found and could not be evaluated
+//!   ([`DecisionInput::unevenness_problem`]) is evidence of unevenness of
+//!   unknown size: that recording is [`Decision::NotMeasured`].
 //! - The margin is the signed distance from the measured tension to the
 //!   nearest tolerance limit: positive inside the tolerance, negative
 //!   outside; also given as a percentage of the tolerance width H − L.
@@ -120,6 +133,8 @@ pub struct Limits {
     pub upper_n_per_m: f64,
     /// Largest allowed |anisotropy|, percent, if limited.
     pub max_anisotropy_percent: Option<f64>,
+    /// Largest allowed unevenness (spread 2|ε|), percent, if limited.
+    pub max_unevenness_percent: Option<f64>,
     /// Worst grade still decided on; worse grades are not measured.
     pub min_quality: Grade,
 }
@@ -140,6 +155,13 @@ pub struct DecisionInput {
     /// Anisotropy and its standard uncertainty, percent, when the model
     /// measures it.
     pub anisotropy_percent: Option<Estimate>,
+    /// Unevenness (spread 2|ε| of the principal tensions) and its standard
+    /// uncertainty, percent, when a split pair was resolved.
+    pub unevenness_percent: Option<Estimate>,
+    /// Why the unevenness could not be judged although a split pair was
+    /// found (e.g. a member without an uncertainty); with an unevenness
+    /// limit such a recording is not measured rather than passed.
+    pub unevenness_problem: Option<String>,
     /// Quality grade of the measurement.
     pub grade: Grade,
     /// The grade's reasons (quoted when the grade is too poor to decide).
@@ -234,9 +256,36 @@ pub struct Verdict {
     pub margin: Option<Margin>,
     /// Deviation from the nominal tension x − nominal, N/m (when measured).
     pub deviation_from_nominal_n_per_m: Option<f64>,
+    /// The anisotropy judgement, when the limits hold one and it was
+    /// measured.
+    pub anisotropy: Option<LimitJudgement>,
+    /// The unevenness judgement, when the limits hold one and it was
+    /// measured.
+    pub unevenness: Option<LimitJudgement>,
     /// Sentences explaining the decision.
     pub reasons: Vec<String>,
 }
+
+/// One upper-limit judgement of a percentage (anisotropy, unevenness)
+/// under the rule.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct LimitJudgement {
+    /// The measured value, percent (signed for the anisotropy; its
+    /// magnitude is judged).
+    pub value_percent: f64,
+    /// Its standard uncertainty, percentage points.
+    pub standard_uncertainty_percent: f64,
+    /// The limit, percent.
+    pub limit_percent: f64,
+    /// Guard band w = k·u (0 for simple acceptance), percentage points.
+    pub guard_band_percent: f64,
+    /// `pass`, `fail` or `indeterminate`.
+    pub decision: &'static str,
+}
+
+/// The reason printed when an unevenness limit meets a recording without
+/// a resolved split pair.
+pub const EVENNESS_NOT_MEASURABLE: &str = "evenness not measurable: no split pair resolved";
 
 /// One two-sided judgement of `x` against [lo, hi] with guard band `w`
 /// (see the module conventions); returns the decision and, for values in
@@ -289,6 +338,8 @@ pub fn decide(input: &DecisionInput, limits: &Limits, rule: &DecisionRule) -> Ve
         acceptance_interval_n_per_m: None,
         margin: None,
         deviation_from_nominal_n_per_m: None,
+        anisotropy: None,
+        unevenness: None,
         reasons: Vec::new(),
     };
     let not_measured = |mut v: Verdict, reason: String| {
@@ -413,48 +464,104 @@ pub fn decide(input: &DecisionInput, limits: &Limits, rule: &DecisionRule) -> Ve
     }
 
     if let Some(a_max) = limits.max_anisotropy_percent {
-        match input.anisotropy_percent {
-            None => {
+        let Some(a) = input.anisotropy_percent else {
+            return not_measured(
+                verdict,
+                format!(
+                    "the specification limits the anisotropy to {a_max} % but this measurement has no anisotropy; use a model that measures it"
+                ),
+            );
+        };
+        match judge_upper("anisotropy", a, a_max, rule) {
+            Ok((j, text)) => {
+                verdict.reasons.push(text);
+                decision = worse(decision, j.decision);
+                verdict.anisotropy = Some(j);
+            }
+            Err(why) => return not_measured(verdict, why),
+        }
+    }
+    if let Some(s_max) = limits.max_unevenness_percent {
+        match input.unevenness_percent {
+            None if input.unevenness_problem.is_some() => {
                 return not_measured(
                     verdict,
                     format!(
-                        "the specification limits the anisotropy to {a_max} % but this measurement has no anisotropy; use a model that measures it"
+                        "the unevenness limit {s_max} % cannot be judged: {}; tap again (off the axes, a longer recording)",
+                        input.unevenness_problem.clone().unwrap_or_default()
                     ),
                 )
             }
-            Some(a) => {
-                let (av, au) = (a.value.abs(), a.standard_uncertainty);
-                if !av.is_finite() || !au.is_finite() || au < 0.0 {
-                    return not_measured(
-                        verdict,
-                        format!("the anisotropy {} % ± {au} % cannot be judged", a.value),
-                    );
+            None => verdict.reasons.push(format!(
+                "{EVENNESS_NOT_MEASURABLE} (the split, if any, is below what this recording resolves; tap off the axes so both members of a pair sound); decided without the unevenness limit {s_max} %"
+            )),
+            Some(e) => match judge_upper("unevenness", e, s_max, rule) {
+                Ok((j, text)) => {
+                    verdict.reasons.push(text);
+                    decision = worse(decision, j.decision);
+                    verdict.unevenness = Some(j);
                 }
-                let wa = rule.guard_band(au);
-                // One-sided limit |a| ≤ a_max: judged as [−∞, a_max].
-                let (d, term) = judge(av, f64::NEG_INFINITY, a_max, wa);
-                let text = match (&d, term) {
-                    (Decision::Pass, _) => {
-                        format!("anisotropy |{:.3}| % is within {a_max} %", a.value)
-                    }
-                    (Decision::Fail, _) => {
-                        format!("anisotropy |{:.3}| % exceeds {a_max} %", a.value)
-                    }
-                    (_, Some(term)) => format!(
-                        "anisotropy |{:.3}| % is within the guard band {wa:.3} % of the limit {a_max} % (ILAC-G8 \"{term}\")",
-                        a.value
-                    ),
-                    _ => String::new(),
-                };
-                verdict.reasons.push(text);
-                if d.severity() > decision.severity() {
-                    decision = d;
-                }
-            }
+                Err(why) => return not_measured(verdict, why),
+            },
         }
     }
     verdict.decision = decision;
     verdict
+}
+
+/// The worse of a decision and a judgement's decision name.
+fn worse(d: Decision, judged: &str) -> Decision {
+    let j = match judged {
+        "fail" => Decision::Fail,
+        "indeterminate" => Decision::Indeterminate,
+        _ => Decision::Pass,
+    };
+    if j.severity() > d.severity() {
+        j
+    } else {
+        d
+    }
+}
+
+/// Judges |x| ≤ `max` (percent) under the rule with x's own uncertainty:
+/// the one-sided tolerance [−∞, max] with guard band w = k·u (0 for simple
+/// acceptance). Returns the judgement and its sentence, or Err with the
+/// reason it cannot be judged (non-finite value or uncertainty).
+fn judge_upper(
+    what: &str,
+    x: Estimate,
+    max: f64,
+    rule: &DecisionRule,
+) -> std::result::Result<(LimitJudgement, String), String> {
+    let (v, u) = (x.value.abs(), x.standard_uncertainty);
+    if !v.is_finite() || !u.is_finite() || u < 0.0 {
+        return Err(format!("the {what} {} % ± {u} % cannot be judged", x.value));
+    }
+    let w = rule.guard_band(u);
+    let (d, term) = judge(v, f64::NEG_INFINITY, max, w);
+    let text = match (&d, term) {
+        (Decision::Pass, _) if w > 0.0 => format!(
+            "{what} |{:.3}| % ± {u:.3} % is within {max} % by more than the guard band {w:.3} %",
+            x.value
+        ),
+        (Decision::Pass, _) => format!("{what} |{:.3}| % is within {max} %", x.value),
+        (Decision::Fail, _) => format!("{what} |{:.3}| % exceeds {max} %", x.value),
+        (_, Some(term)) => format!(
+            "{what} |{:.3}| % is within the guard band {w:.3} % of the limit {max} % (ILAC-G8 \"{term}\")",
+            x.value
+        ),
+        _ => String::new(),
+    };
+    Ok((
+        LimitJudgement {
+            value_percent: x.value,
+            standard_uncertainty_percent: u,
+            limit_percent: max,
+            guard_band_percent: w,
+            decision: d.name(),
+        },
+        text,
+    ))
 }
 
 /// Parses a grade name (`sound`, `fair`, `doubtful`, `unfit`).
@@ -475,6 +582,7 @@ mod tests {
             lower_n_per_m: 1800.0,
             upper_n_per_m: 2200.0,
             max_anisotropy_percent: None,
+            max_unevenness_percent: None,
             min_quality: Grade::Fair,
         }
     }
@@ -486,6 +594,8 @@ mod tests {
                 standard_uncertainty: u,
             }),
             anisotropy_percent: None,
+            unevenness_percent: None,
+            unevenness_problem: None,
             grade,
             grade_reasons: vec![],
         }
@@ -687,6 +797,79 @@ mod tests {
         assert_eq!(decide(&i, &lim, &r).decision, Decision::Fail);
         // Limited but not measured: no decision.
         let v = decide(&input(2000.0, 10.0, Grade::Sound), &lim, &r);
+        assert_eq!(v.decision.name(), "not_measured");
+    }
+
+    #[test]
+    fn unevenness_limit_is_judged_and_a_missing_pair_is_said() {
+        let lim = Limits {
+            max_unevenness_percent: Some(2.0),
+            ..limits()
+        };
+        let with = |s: Option<(f64, f64)>| DecisionInput {
+            unevenness_percent: s.map(|(v, u)| Estimate {
+                value: v,
+                standard_uncertainty: u,
+            }),
+            ..input(2000.0, 10.0, Grade::Sound)
+        };
+        let g = DecisionRule::new(Rule::Guarded);
+        let s = DecisionRule::new(Rule::Simple);
+        // u = 0.25 %, k = 2: w = 0.5 %; values exact in binary.
+        let v = decide(&with(Some((1.0, 0.25))), &lim, &g);
+        assert_eq!(v.decision, Decision::Pass);
+        let j = v.unevenness.unwrap();
+        assert_eq!(j.decision, "pass");
+        assert_eq!(j.guard_band_percent, 0.5);
+        assert_eq!(
+            decide(&with(Some((1.75, 0.25))), &lim, &g).decision,
+            Decision::Indeterminate
+        );
+        assert_eq!(
+            decide(&with(Some((1.75, 0.25))), &lim, &s).decision,
+            Decision::Pass
+        );
+        assert_eq!(
+            decide(&with(Some((2.25, 0.25))), &lim, &s).decision,
+            Decision::Fail
+        );
+        assert_eq!(
+            decide(&with(Some((3.0, 0.25))), &lim, &g).decision,
+            Decision::Fail
+        );
+        // No split pair: decided on the tension, with the reason.
+        for r in [s, g] {
+            let v = decide(&with(None), &lim, &r);
+            assert_eq!(v.decision, Decision::Pass);
+            assert!(v.unevenness.is_none());
+            assert!(
+                v.reasons
+                    .iter()
+                    .any(|x| x.contains(EVENNESS_NOT_MEASURABLE)),
+                "{:?}",
+                v.reasons
+            );
+        }
+        // ...and a tension failure still fails.
+        let mut i = with(None);
+        i.tension = Some(Estimate {
+            value: 1500.0,
+            standard_uncertainty: 10.0,
+        });
+        assert_eq!(decide(&i, &lim, &g).decision, Decision::Fail);
+        // Without the limit nothing is said about evenness.
+        let v = decide(&with(None), &limits(), &g);
+        assert!(v.reasons.iter().all(|x| !x.contains("evenness")));
+        // A pair found but not evaluated is not passed.
+        let mut i = with(None);
+        i.unevenness_problem = Some("the (1,1) pair has a member without an uncertainty".into());
+        let v = decide(&i, &lim, &s);
+        let Decision::NotMeasured { reason } = &v.decision else {
+            panic!("{v:?}")
+        };
+        assert!(reason.contains("(1,1) pair"), "{reason}");
+        // A non-finite value cannot be judged.
+        let v = decide(&with(Some((f64::NAN, 0.1))), &lim, &g);
         assert_eq!(v.decision.name(), "not_measured");
     }
 

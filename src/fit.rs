@@ -83,6 +83,44 @@ pub enum FitModel {
     AirLoaded,
 }
 
+impl FitModel {
+    /// The model named `name` as `tonus fit --model`, a panel file's
+    /// `model` key and a specification's `model` key write it
+    /// (`isotropic`, `free-aspect`, `biaxial`, `stiff` or `plate`, `air` or
+    /// `air-loaded`); None for anything else.
+    pub fn from_name(name: &str) -> Option<FitModel> {
+        match name {
+            "isotropic" => Some(FitModel::Isotropic),
+            "free-aspect" => Some(FitModel::FreeAspect),
+            "biaxial" => Some(FitModel::Biaxial),
+            "stiff" | "plate" => Some(FitModel::Stiff),
+            "air" | "air-loaded" => Some(FitModel::AirLoaded),
+            _ => None,
+        }
+    }
+
+    /// The name [`FitModel::from_name`] reads (the short form).
+    pub fn name(self) -> &'static str {
+        match self {
+            FitModel::Isotropic => "isotropic",
+            FitModel::FreeAspect => "free-aspect",
+            FitModel::Biaxial => "biaxial",
+            FitModel::Stiff => "stiff",
+            FitModel::AirLoaded => "air",
+        }
+    }
+
+    /// The model is defined on a rectangle only: biaxial tension (Tx, Ty
+    /// along the sides), the simply supported plate, the free aspect
+    /// ratio. `pipeline::measure` refuses these on a circle.
+    pub fn needs_rectangle(self) -> bool {
+        matches!(
+            self,
+            FitModel::FreeAspect | FitModel::Biaxial | FitModel::Stiff
+        )
+    }
+}
+
 /// The outcome of a fit.
 #[derive(Debug, Clone, Serialize)]
 pub struct FitResult {

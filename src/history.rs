@@ -15,7 +15,7 @@
 //!   local disk, not a network share (SQLite documentation, "Write-Ahead
 //!   Logging", §"Disadvantages").
 //!
-//! # Table `decisions` (schema version 1, `PRAGMA user_version`)
+//! # Table `decisions` (schema version 2, `PRAGMA user_version`)
 //!
 //! | column | content |
 //! |---|---|
@@ -35,9 +35,21 @@
 //! | `rule` | simple, guarded |
 //! | `reasons` | JSON array of sentences (grade and decision reasons) |
 //! | `record_json` | the full JSON record of the measurement |
+//! | `anisotropy_percent`, `anisotropy_u_percent` | biaxial model: 100·(Tx − Ty)/((Tx + Ty)/2) and its standard uncertainty, %; NULL otherwise (version 2) |
+//! | `unevenness_percent`, `unevenness_u_percent` | circle or square panel with a resolved split pair: the spread 2\|ε\| and its standard uncertainty, %; NULL otherwise (version 2) |
+//! | `calibration_sha256` | SHA-256 of the specification's calibration file, hex; NULL without one (version 2) |
 //!
 //! [`History::export_csv`] writes the same columns except `record_json`
-//! and `time_unix_ms`, with `reasons` joined by `"; "`.
+//! and `time_unix_ms`, with `reasons` joined by `"; "`; the version 2
+//! columns come last.
+//!
+//! # Older files
+//!
+//! A database of schema version 1 (no anisotropy, unevenness or
+//! calibration columns) is brought to version 2 when opened: each missing
+//! column is added with `ALTER TABLE … ADD COLUMN` (NULL in the old rows),
+//! in the same transaction that reads the version. A file of a newer
+//! version than this tonus knows is refused.
 
 use crate::decision::Verdict;
 use crate::error::{Result, TonusError};
@@ -52,7 +64,16 @@ use std::time::{Duration, SystemTime, UNIX_EPOCH};
 pub const BUSY_TIMEOUT: Duration = Duration::from_secs(10);
 
 /// Schema version kept in `PRAGMA user_version`.
-pub const SCHEMA_VERSION: i64 = 1;
+pub const SCHEMA_VERSION: i64 = 2;
+
+/// Columns added in schema version 2, with their SQL types (all nullable).
+const V2_COLUMNS: [(&str, &str); 5] = [
+    ("anisotropy_percent", "REAL"),
+    ("anisotropy_u_percent", "REAL"),
+    ("unevenness_percent", "REAL"),
+    ("unevenness_u_percent", "REAL"),
+    ("calibration_sha256", "TEXT"),
+];
 
 const SCHEMA: &str = "
 CREATE TABLE IF NOT EXISTS decisions (
@@ -76,7 +97,12 @@ CREATE TABLE IF NOT EXISTS decisions (
     decision TEXT NOT NULL,
     rule TEXT NOT NULL,
     reasons TEXT NOT NULL,
-    record_json TEXT NOT NULL
+    record_json TEXT NOT NULL,
+    anisotropy_percent REAL,
+    anisotropy_u_percent REAL,
+    unevenness_percent REAL,
+    unevenness_u_percent REAL,
+    calibration_sha256 TEXT
 );
 CREATE INDEX IF NOT EXISTS decisions_spec_time ON decisions (spec_name, time_unix_ms);
 CREATE INDEX IF NOT EXISTS decisions_time ON decisions (time_unix_ms);
@@ -86,10 +112,11 @@ CREATE INDEX IF NOT EXISTS decisions_recording ON decisions (recording_sha256);
 const COLUMNS: &str = "id, recording_sha256, recording_path, time_unix_ms, station, operator, \
     spec_name, spec_version, spec_sha256, tension_n_per_m, tension_u_n_per_m, \
     wave_speed_m_per_s, wave_speed_u_m_per_s, modes_used, rms_residual_cents, grade, \
-    decision, rule, reasons, record_json";
+    decision, rule, reasons, record_json, anisotropy_percent, anisotropy_u_percent, \
+    unevenness_percent, unevenness_u_percent, calibration_sha256";
 
 /// Column names of [`History::export_csv`], in order.
-pub const CSV_HEADER: [&str; 19] = [
+pub const CSV_HEADER: [&str; 24] = [
     "id",
     "time_utc",
     "recording_sha256",
@@ -109,6 +136,11 @@ pub const CSV_HEADER: [&str; 19] = [
     "decision",
     "rule",
     "reasons",
+    "anisotropy_percent",
+    "anisotropy_u_percent",
+    "unevenness_percent",
+    "unevenness_u_percent",
+    "calibration_sha256",
 ];
 
 /// A time in UTC, as milliseconds since 1970-01-01T00:00:00Z (Unix time,
@@ -319,6 +351,16 @@ pub struct Row {
     pub reasons: Vec<String>,
     /// The full JSON record.
     pub record_json: String,
+    /// Anisotropy (biaxial model), %.
+    pub anisotropy_percent: Option<f64>,
+    /// Its standard uncertainty, %.
+    pub anisotropy_u_percent: Option<f64>,
+    /// Unevenness, the spread 2|ε| from resolved split pairs, %.
+    pub unevenness_percent: Option<f64>,
+    /// Its standard uncertainty, %.
+    pub unevenness_u_percent: Option<f64>,
+    /// SHA-256 of the calibration file the fit used, hex.
+    pub calibration_sha256: Option<String>,
 }
 
 /// Where a recording came from and who measured it.
@@ -374,6 +416,11 @@ impl Row {
             rule: verdict.rule.to_string(),
             reasons,
             record_json,
+            anisotropy_percent: input.anisotropy_percent.map(|a| a.value),
+            anisotropy_u_percent: input.anisotropy_percent.map(|a| a.standard_uncertainty),
+            unevenness_percent: input.unevenness_percent.map(|e| e.value),
+            unevenness_u_percent: input.unevenness_percent.map(|e| e.standard_uncertainty),
+            calibration_sha256: spec.calibration_sha256.clone(),
         }
     }
 }
@@ -471,6 +518,24 @@ impl History {
             });
         }
         tx.execute_batch(SCHEMA).map_err(io)?;
+        // An older file keeps its table: add what version 2 added.
+        let present: Vec<String> = {
+            let mut stmt = tx
+                .prepare("SELECT name FROM pragma_table_info('decisions')")
+                .map_err(io)?;
+            let names = stmt
+                .query_map([], |r| r.get::<_, String>(0))
+                .map_err(io)?
+                .collect::<std::result::Result<Vec<String>, _>>()
+                .map_err(io)?;
+            names
+        };
+        for (name, kind) in V2_COLUMNS {
+            if !present.iter().any(|p| p == name) {
+                tx.execute_batch(&format!("ALTER TABLE decisions ADD COLUMN {name} {kind}"))
+                    .map_err(io)?;
+            }
+        }
         tx.pragma_update(None, "user_version", SCHEMA_VERSION)
             .map_err(io)?;
         tx.commit().map_err(io)?;
@@ -519,8 +584,10 @@ impl History {
                 "INSERT INTO decisions (recording_sha256, recording_path, time_utc, time_unix_ms, \
                  station, operator, spec_name, spec_version, spec_sha256, tension_n_per_m, \
                  tension_u_n_per_m, wave_speed_m_per_s, wave_speed_u_m_per_s, modes_used, \
-                 rms_residual_cents, grade, decision, rule, reasons, record_json) \
-                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20)",
+                 rms_residual_cents, grade, decision, rule, reasons, record_json, \
+                 anisotropy_percent, anisotropy_u_percent, unevenness_percent, \
+                 unevenness_u_percent, calibration_sha256) \
+                 VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20, ?21, ?22, ?23, ?24, ?25)",
                 params![
                     row.recording_sha256,
                     row.recording_path,
@@ -542,6 +609,11 @@ impl History {
                     row.rule,
                     reasons,
                     row.record_json,
+                    finite_or_null(row.anisotropy_percent),
+                    finite_or_null(row.anisotropy_u_percent),
+                    finite_or_null(row.unevenness_percent),
+                    finite_or_null(row.unevenness_u_percent),
+                    row.calibration_sha256,
                 ],
             )
             .map(|_| tx.last_insert_rowid());
@@ -610,6 +682,11 @@ impl History {
                         rule: r.get(17)?,
                         reasons: Vec::new(),
                         record_json: r.get(19)?,
+                        anisotropy_percent: r.get(20)?,
+                        anisotropy_u_percent: r.get(21)?,
+                        unevenness_percent: r.get(22)?,
+                        unevenness_u_percent: r.get(23)?,
+                        calibration_sha256: r.get(24)?,
                     },
                     reasons,
                 ))
@@ -679,6 +756,11 @@ impl History {
                 r.decision.clone(),
                 r.rule.clone(),
                 r.reasons.join("; "),
+                num(r.anisotropy_percent),
+                num(r.anisotropy_u_percent),
+                num(r.unevenness_percent),
+                num(r.unevenness_u_percent),
+                r.calibration_sha256.clone().unwrap_or_default(),
             ])
             .map_err(werr)?;
         }
@@ -725,6 +807,11 @@ mod tests {
             rule: "guarded".into(),
             reasons: vec![format!("reason, with \"quotes\" {i}")],
             record_json: format!("{{\"i\":{i}}}"),
+            anisotropy_percent: Some(1.5 - i as f64),
+            anisotropy_u_percent: Some(0.25),
+            unevenness_percent: None,
+            unevenness_u_percent: None,
+            calibration_sha256: (i % 2 == 1).then(|| "cd".repeat(32)),
         }
     }
 
@@ -899,6 +986,85 @@ mod tests {
                 .unwrap();
             assert_eq!(mine.len(), PER_THREAD);
         }
+    }
+
+    /// The version 1 table, as tonus wrote it before the anisotropy,
+    /// unevenness and calibration columns.
+    const SCHEMA_V1: &str = "
+CREATE TABLE decisions (
+    id INTEGER PRIMARY KEY AUTOINCREMENT,
+    recording_sha256 TEXT NOT NULL,
+    recording_path TEXT NOT NULL,
+    time_utc TEXT NOT NULL,
+    time_unix_ms INTEGER NOT NULL,
+    station TEXT,
+    operator TEXT,
+    spec_name TEXT NOT NULL,
+    spec_version TEXT NOT NULL,
+    spec_sha256 TEXT NOT NULL,
+    tension_n_per_m REAL,
+    tension_u_n_per_m REAL,
+    wave_speed_m_per_s REAL,
+    wave_speed_u_m_per_s REAL,
+    modes_used INTEGER,
+    rms_residual_cents REAL,
+    grade TEXT NOT NULL,
+    decision TEXT NOT NULL,
+    rule TEXT NOT NULL,
+    reasons TEXT NOT NULL,
+    record_json TEXT NOT NULL
+);
+PRAGMA user_version = 1;
+INSERT INTO decisions (recording_sha256, recording_path, time_utc, time_unix_ms, spec_name,
+    spec_version, spec_sha256, tension_n_per_m, grade, decision, rule, reasons, record_json)
+VALUES ('aa', 'old.wav', '2025-03-01T08:00:00.000Z', 1740816000000, 'screen', '1', 'bb',
+    2000.5, 'sound', 'pass', 'guarded', '[\"old reason\"]', '{}');
+";
+
+    #[test]
+    fn a_version_1_history_opens_and_gains_the_new_columns() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("old.sqlite");
+        {
+            let conn = Connection::open(&path).unwrap();
+            conn.execute_batch(SCHEMA_V1).unwrap();
+        }
+        let mut h = History::open(&path).unwrap();
+        let version: i64 = h
+            .conn
+            .query_row("PRAGMA user_version", [], |r| r.get(0))
+            .unwrap();
+        assert_eq!(version, SCHEMA_VERSION);
+        // The old row is whole, its new fields empty.
+        let all = h.query(&Filter::default()).unwrap();
+        assert_eq!(all.len(), 1);
+        let old = &all[0].row;
+        assert_eq!(old.recording_path, "old.wav");
+        assert_eq!(old.tension_n_per_m, Some(2000.5));
+        assert_eq!(old.reasons, vec!["old reason".to_string()]);
+        assert_eq!(old.anisotropy_percent, None);
+        assert_eq!(old.calibration_sha256, None);
+        // New rows carry the new columns.
+        let new = row(1, "screen", "fail", 1_740_816_000_001);
+        h.insert(&new).unwrap();
+        drop(h);
+        // Opening again does not add the columns twice.
+        let h = History::open(&path).unwrap();
+        let all = h.query(&Filter::default()).unwrap();
+        assert_eq!(all.len(), 2);
+        assert_eq!(all[1].row, new);
+        let mut out = Vec::new();
+        h.export_csv(&Filter::default(), &mut out).unwrap();
+        let text = String::from_utf8(out).unwrap();
+        assert!(text.lines().next().unwrap().ends_with("calibration_sha256"));
+        assert!(text.contains(&"cd".repeat(32)), "{text}");
+        // A newer file is refused, naming the versions.
+        h.conn
+            .pragma_update(None, "user_version", SCHEMA_VERSION + 1)
+            .unwrap();
+        drop(h);
+        let e = History::open(&path).unwrap_err().to_string();
+        assert!(e.contains("newer than this tonus"), "{e}");
     }
 
     #[test]

@@ -155,6 +155,9 @@ fn run(cli: Cli) -> Result<Outcome> {
             peaks_only,
         } => {
             let spec = tonus::spec::Spec::from_file(&spec)?;
+            // Ctrl-C and SIGTERM finish the recordings in flight and write
+            // the outputs and the report.
+            tonus::batch::stop_on_signals()?;
             let opts = tonus::batch::InspectOptions {
                 out,
                 history: (!no_history).then_some(history),

@@ -24,15 +24,19 @@
 //! areal-density-u = "0.8g/m2"      # required: standard uncertainty (k = 1) of the areal density
 //! tap-at = "0.3,0.35"              # optional, fractions of width and height
 //! # pickup-at = "0.5,0.5"          # optional
-//! model = "isotropic"              # required; only "isotropic" for now
+//! model = "biaxial"                # required: "isotropic", "biaxial" (rectangle),
+//!                                  # "air" (air-loaded film) or "stiff" (rectangle)
+//! # calibration = "screen.calibration.toml" # optional, from tonus calibrate;
+//! #                                # relative to this file's folder; model "isotropic"
 //!
 //! [limits]
 //! nominal-tension = "20N/cm"       # required; lower ≤ nominal ≤ upper
 //! lower-tension = "18N/cm"         # required
 //! upper-tension = "22N/cm"         # required; above lower-tension
 //! min-quality = "fair"             # optional: "sound" | "fair" (default) | "doubtful"
-//! # max-anisotropy-percent = 5     # optional number; needs a model that measures
-//! #                                # anisotropy, which specs do not offer yet
+//! max-anisotropy-percent = 5       # optional number; model "biaxial" only
+//! # max-unevenness-percent = 2     # optional number; circle or square panel,
+//! #                                # model "isotropic" or "air"
 //!
 //! [decision]
 //! rule = "guarded"                 # required: "simple" (shared risk) or "guarded"
@@ -42,15 +46,67 @@
 //! Tension units: `N/m`, `N/cm`, `kN/m`, `lbf/in`. Key names use hyphens
 //! (underscores are accepted too, as in the panel file).
 //!
+//! # Models
+//!
+//! `model` names a model of `tonus fit --model`, read by the same
+//! [`FitModel::from_name`] (aliases `plate`, `air-loaded` included):
+//!
+//! - `isotropic`: the wave speed, geometry as given;
+//! - `biaxial` (rectangle): Tx and Ty along the sides ([`crate::biaxial`]);
+//!   the tension decided on is the mean (Tx + Ty)/2, and the anisotropy
+//!   a = 100·(Tx − Ty)/((Tx + Ty)/2) % comes with its uncertainty;
+//! - `air`: the air-loaded membrane ([`crate::airload`]), for light films
+//!   such as drum heads;
+//! - `stiff` (rectangle): the prestressed, simply supported plate
+//!   ([`crate::plate`]).
+//!
+//! `free-aspect` is refused (it fits the height a specification fixes),
+//! and so are `biaxial` and `stiff` on a circle.
+//!
+//! # Limits beyond the tension
+//!
+//! - `max-anisotropy-percent` = a_max: |a| ≤ a_max, judged under the rule
+//!   with a's own standard uncertainty (guard band k·u(a) under the
+//!   guarded rule). Only with `model = "biaxial"`.
+//! - `max-unevenness-percent` = s_max: the spread s = 2|ε| ≤ s_max, where
+//!   the principal tensions are T(1 ± ε): s is, to first order, the
+//!   tightest direction's tension over the slackest's, minus one — the
+//!   figure a technician compares with a tolerance
+//!   ([`crate::evenness::Evenness::spread_pct`], u(s) = 2·u(ε)). It is
+//!   read from the split (1,n) pairs of a circle or the (m,n)/(n,m) pairs
+//!   of a square panel, so it applies to those shapes with the `isotropic`
+//!   or `air` model only. A recording whose pairs are not split (an even
+//!   head, or a split below the resolution) has no unevenness: it is
+//!   decided on the tension alone, and the reasons say "evenness not
+//!   measurable: no split pair resolved". A pair that was found but could
+//!   not be evaluated makes the recording not measured.
+//!
+//! Both are judged by [`decision::decide`]; the verdict is the worst of
+//! the tension's and the limits' judgements.
+//!
+//! # Calibration
+//!
+//! `calibration` in `[panel]` names a calibration file written by `tonus
+//! calibrate` (a relative path starts at the specification's folder). It
+//! is read and checked when the specification is loaded: the file must
+//! parse ([`calibration::Calibration::parse`]) and match the panel's
+//! geometry and areal density ([`calibration::Calibration::check_panel`]),
+//! and the model must be `isotropic`, since the factors already hold air
+//! loading and the supports. Its SHA-256 goes into every record (CSV,
+//! JSON Lines, history). With a calibration the tension uncertainty is
+//! [`Spec::calibrated_tension_uncertainty`]: the areal density cancels.
+//!
 //! # Checks
 //!
 //! Unknown tables and keys, missing keys, values of the wrong type or unit,
-//! keys that do not apply to the shape, a lower limit not below the upper,
-//! a nominal outside the limits and an areal-density uncertainty not below
-//! the areal density are all errors. Each names the line and the key and
-//! says what is expected, e.g. `line 7: key 'lower-tension': cannot read
-//! "12" as a tension with unit (N/m, N/cm, kN/m, lbf/in); write e.g.
-//! 2500N/m`. All problems found are reported at once, separated by ` | `.
+//! keys that do not apply to the shape or the model, a lower limit not
+//! below the upper, a nominal outside the limits, an areal-density
+//! uncertainty not below the areal density, and a calibration file that
+//! cannot be read or does not fit the panel are all errors. Each names the
+//! line and the key and says what is expected, e.g. `line 7: key
+//! 'lower-tension': cannot read "12" as a tension with unit (N/m, N/cm,
+//! kN/m, lbf/in); write e.g. 2500N/m`. All problems found are reported at
+//! once, separated by ` | `.
 //!
 //! # Uncertainty
 //!
@@ -60,6 +116,7 @@
 //! (u_T/T)² = (u_fit/T)² + (u_σ/σ)², see [`Spec::tension_uncertainty`].
 //! The dimensions' uncertainty is not included.
 
+use crate::calibration;
 use crate::decision::{self, DecisionInput, DecisionRule, Limits, Rule, Verdict};
 use crate::error::{Result, TonusError};
 use crate::fit::{Estimate, FitModel};
@@ -71,6 +128,7 @@ use crate::units::{self, KgPerM2, Meters};
 use serde::Serialize;
 use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 use toml::de::{DeTable, DeValue};
 use toml::Spanned;
 
@@ -82,27 +140,57 @@ pub const DEFAULT_MIN_QUALITY: Grade = Grade::Fair;
 /// The values are copied, not recomputed, so only rounding is allowed for.
 const SAME_DENSITY_REL: f64 = 1e-9;
 
-/// The fit model a specification asks for.
+/// The fit model a specification asks for: the models of `tonus fit
+/// --model` (named as there, [`FitModel::from_name`]) except the free
+/// aspect ratio, which would fit the geometry a specification fixes.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum SpecModel {
     /// Wave speed only, geometry as given ([`FitModel::Isotropic`]).
     Isotropic,
+    /// Tx and Ty of a rectangle, the anisotropy with its uncertainty
+    /// ([`FitModel::Biaxial`]); the tension decided on is the mean
+    /// (Tx + Ty)/2.
+    Biaxial,
+    /// The air-loaded membrane ([`FitModel::AirLoaded`]), for light films
+    /// such as drum heads.
+    Air,
+    /// The prestressed, simply supported rectangular plate
+    /// ([`FitModel::Stiff`]): tension with the bending stiffness fitted.
+    Stiff,
 }
 
 impl SpecModel {
+    /// The specification model for a fit model; None for the free aspect
+    /// ratio.
+    pub fn from_fit_model(m: FitModel) -> Option<SpecModel> {
+        match m {
+            FitModel::Isotropic => Some(SpecModel::Isotropic),
+            FitModel::Biaxial => Some(SpecModel::Biaxial),
+            FitModel::AirLoaded => Some(SpecModel::Air),
+            FitModel::Stiff => Some(SpecModel::Stiff),
+            FitModel::FreeAspect => None,
+        }
+    }
+
     /// The fit model to run.
     pub fn fit_model(self) -> FitModel {
         match self {
             SpecModel::Isotropic => FitModel::Isotropic,
+            SpecModel::Biaxial => FitModel::Biaxial,
+            SpecModel::Air => FitModel::AirLoaded,
+            SpecModel::Stiff => FitModel::Stiff,
         }
     }
 
-    /// The name in the file.
+    /// The name in the file (as `tonus fit --model` writes it).
     pub fn name(self) -> &'static str {
-        match self {
-            SpecModel::Isotropic => "isotropic",
-        }
+        self.fit_model().name()
+    }
+
+    /// The model measures the anisotropy Tx/Ty (biaxial only).
+    pub fn measures_anisotropy(self) -> bool {
+        self == SpecModel::Biaxial
     }
 }
 
@@ -129,6 +217,11 @@ pub struct Spec {
     pub limits: Limits,
     /// The decision rule and coverage factor.
     pub rule: DecisionRule,
+    /// The calibration named by `[panel] calibration`, loaded and checked
+    /// against the panel.
+    pub calibration: Option<Arc<calibration::Loaded>>,
+    /// SHA-256 of the calibration file's bytes, hex (with `calibration`).
+    pub calibration_sha256: Option<String>,
     panel: Panel,
 }
 
@@ -182,6 +275,7 @@ impl Spec {
         })?;
         let mut ld = Loader {
             bytes,
+            dir: path.parent().map(Path::to_path_buf).unwrap_or_default(),
             problems: Vec::new(),
         };
         let spec = ld.load(doc.get_ref(), path, sha256_hex(bytes));
@@ -223,15 +317,47 @@ impl Spec {
         tension.standard_uncertainty.hypot(tension.value * rel)
     }
 
+    /// Standard uncertainty of a tension fitted against the calibration,
+    /// N/m: u_T = √(u_fit² + (T·u_ref)² + (T·u_f)²), u_ref = u(T_ref)/T_ref
+    /// the reference tension's relative part and u_f the per-mode
+    /// factors' ([`calibration::CalibrationTerm`]). σ does not enter: with
+    /// the calibration's σ, T = T_ref·(f/f_ref)² mode by mode, so the areal
+    /// density and its uncertainty cancel ([`crate::calibration`]).
+    pub fn calibrated_tension_uncertainty(
+        tension: &Estimate,
+        term: &calibration::CalibrationTerm,
+    ) -> f64 {
+        let rel = term.u_rel_reference.hypot(term.u_rel_factors);
+        tension.standard_uncertainty.hypot(tension.value * rel)
+    }
+
     /// What [`decision::decide`] is given for a measurement: the tension
-    /// with [`Spec::tension_uncertainty`], the grade and its reasons.
+    /// with [`Spec::tension_uncertainty`] (or
+    /// [`Spec::calibrated_tension_uncertainty`] when the fit used the
+    /// calibration), the anisotropy of the biaxial model, the unevenness
+    /// from the resolved split pairs (the spread 2|ε| with u = 2·u(ε),
+    /// percent, [`crate::evenness::Evenness::spread_pct`]), the grade and
+    /// its reasons.
     pub fn decision_input(&self, m: &Measurement) -> DecisionInput {
+        let term = m.calibration.as_ref().and_then(|c| c.term);
         DecisionInput {
             tension: m.tension.map(|t| Estimate {
                 value: t.value,
-                standard_uncertainty: self.tension_uncertainty(&t),
+                standard_uncertainty: match &term {
+                    Some(term) => Spec::calibrated_tension_uncertainty(&t, term),
+                    None => self.tension_uncertainty(&t),
+                },
             }),
-            anisotropy_percent: None,
+            anisotropy_percent: m.biaxial.as_ref().map(|b| b.anisotropy_percent),
+            unevenness_percent: m.evenness.as_ref().map(|e| Estimate {
+                value: e.spread_pct,
+                standard_uncertainty: 2.0 * e.epsilon_u_pct,
+            }),
+            unevenness_problem: if m.evenness.is_none() {
+                unevaluated_pairs(m)
+            } else {
+                None
+            },
             grade: m.quality.grade,
             grade_reasons: m.quality.reasons.clone(),
         }
@@ -269,10 +395,56 @@ impl Spec {
         verdict
     }
 
+    /// The unevenness from split pairs ([`crate::evenness`]) applies: a
+    /// circle or a square panel measured with a membrane model (isotropic
+    /// or air); the same test `max-unevenness-percent` is checked against.
+    pub fn unevenness_applies(&self) -> bool {
+        let shape_ok = match self.panel.shape {
+            Shape::Circle { .. } => true,
+            Shape::Rectangle { width, height } => {
+                // Tolerance: as when the file is read (rounding only).
+                (width.0 - height.0).abs() <= 1e-9 * width.0
+            }
+        };
+        shape_ok && matches!(self.model, SpecModel::Isotropic | SpecModel::Air)
+    }
+
     /// "name version" for messages.
     pub fn spec_label(&self) -> String {
         format!("{} version {}", self.name, self.version)
     }
+}
+
+/// The split pairs that would give the unevenness ((1,n) on a circle,
+/// (m,n)/(n,m) with m ≠ n on a square panel) but have a member without a
+/// finite standard uncertainty (an FFT peak that was not refined), so
+/// that [`crate::evenness`] leaves them out; None when there are none.
+fn unevaluated_pairs(m: &Measurement) -> Option<String> {
+    let bad: Vec<String> = m
+        .modes
+        .iter()
+        .filter(|r| r.degeneracy >= 2)
+        .filter(|r| match m.panel.shape {
+            Shape::Circle { .. } => r.m == 1,
+            Shape::Rectangle { .. } => r.m != r.n,
+        })
+        .filter_map(|r| {
+            let p = r.pair?;
+            let ok = |u: f64| u.is_finite() && u >= 0.0;
+            (!(ok(p.lower.frequency_u_hz) && ok(p.upper.frequency_u_hz))).then(|| {
+                format!(
+                    "{} split into {:.2} and {:.2} Hz",
+                    r.labels, p.lower.frequency_hz, p.upper.frequency_hz
+                )
+            })
+        })
+        .collect();
+    (!bad.is_empty()).then(|| {
+        format!(
+            "a split pair was found ({}) but a member has no frequency uncertainty, so its unevenness could not be computed",
+            bad.join("; ")
+        )
+    })
 }
 
 /// 1-based line number of byte `offset` in `bytes`.
@@ -296,6 +468,7 @@ const PANEL_KEYS: &[&str] = &[
     "pickup-at",
     "areal-density-u",
     "model",
+    "calibration",
     "note",
 ];
 const LIMITS_KEYS: &[&str] = &[
@@ -303,6 +476,7 @@ const LIMITS_KEYS: &[&str] = &[
     "lower-tension",
     "upper-tension",
     "max-anisotropy-percent",
+    "max-unevenness-percent",
     "min-quality",
 ];
 const DECISION_KEYS: &[&str] = &["rule", "coverage-factor"];
@@ -364,7 +538,24 @@ impl<'a, 'i> Section<'a, 'i> {
 
 struct Loader<'b> {
     bytes: &'b [u8],
+    /// The specification's folder: a relative calibration path starts here.
+    dir: PathBuf,
     problems: Vec<(Option<usize>, String)>,
+}
+
+/// What `[panel]` gives the rest of the file.
+#[derive(Default)]
+struct PanelPart {
+    panel: Option<Panel>,
+    spec: Option<PanelSpec>,
+    density_u: Option<KgPerM2>,
+    model: Option<SpecModel>,
+    /// Circle or rectangle, when the shape could be read.
+    is_circle: Option<bool>,
+    /// Width equals height (square panel), when both could be read.
+    is_square: Option<bool>,
+    /// `Some(None)` without a calibration key; None when it failed.
+    calibration: Option<Option<(Arc<calibration::Loaded>, String)>>,
 }
 
 impl<'b> Loader<'b> {
@@ -560,10 +751,10 @@ impl<'b> Loader<'b> {
         let note = text_key(self, "note", "a note", false);
 
         // [panel]
-        let (panel, panel_spec, density_u, model) = self.load_panel(&panel_t);
+        let pp = self.load_panel(&panel_t);
 
         // [limits]
-        let limits = self.load_limits(&limits_t, model);
+        let limits = self.load_limits(&limits_t, &pp);
 
         // [decision]
         let rule = if decision_t.line.is_some() {
@@ -596,33 +787,27 @@ impl<'b> Loader<'b> {
             None
         };
 
+        let calibration = pp.calibration?;
         Some(Spec {
             path: path.to_path_buf(),
             name: name?,
             version: version?,
             note,
             hash,
-            panel_spec: panel_spec?,
-            areal_density_u: density_u?,
-            model: model?,
+            panel_spec: pp.spec?,
+            areal_density_u: pp.density_u?,
+            model: pp.model?,
             limits: limits?,
             rule: rule?,
-            panel: panel?,
+            calibration_sha256: calibration.as_ref().map(|c| c.1.clone()),
+            calibration: calibration.map(|c| c.0),
+            panel: pp.panel?,
         })
     }
 
-    #[allow(clippy::type_complexity)] // a one-off tuple of the table's parts
-    fn load_panel(
-        &mut self,
-        t: &Section,
-    ) -> (
-        Option<Panel>,
-        Option<PanelSpec>,
-        Option<KgPerM2>,
-        Option<SpecModel>,
-    ) {
+    fn load_panel(&mut self, t: &Section) -> PanelPart {
         if t.line.is_none() {
-            return (None, None, None, None);
+            return PanelPart::default();
         }
         let ok_before = self.problems.len();
         let length = "a length with its unit, e.g. \"400mm\"";
@@ -648,6 +833,7 @@ impl<'b> Loader<'b> {
         // The shape's dimensions; keys of the other shape are refused so a
         // forgotten line cannot silently change the panel.
         let mut shape_ok = false;
+        let mut is_square = None;
         let mut placeholder = None;
         match is_circle {
             Some(false) => {
@@ -664,6 +850,9 @@ impl<'b> Loader<'b> {
                     height: Meters(1.0),
                 });
                 if let (Some(w), Some(h)) = (w, h) {
+                    // Tolerance: the same length written two ways (mm, m)
+                    // differs by rounding only.
+                    is_square = Some((w.2 .0 - h.2 .0).abs() <= 1e-9 * w.2 .0);
                     ps.width = Some(w.1);
                     ps.height = Some(h.1);
                     shape_ok = true;
@@ -824,18 +1013,48 @@ impl<'b> Loader<'b> {
             }
         }
 
+        let model_what = "the fit model: \"isotropic\", \"biaxial\" (rectangle), \"air\" or \"stiff\" (rectangle)";
         let model = self
-            .string(t, "model", "the fit model, \"isotropic\"", true)
-            .and_then(|(line, text)| match text.as_str() {
-                "isotropic" => Some(SpecModel::Isotropic),
-                _ => {
-                    self.problem(
-                        Some(line),
-                        format!("key 'model': {text:?} is not a model a specification can use; write \"isotropic\" (the only one so far)"),
-                    );
-                    None
+            .string(t, "model", model_what, true)
+            .and_then(|(line, text)| {
+                let m = FitModel::from_name(&text).map(|m| (m, SpecModel::from_fit_model(m)));
+                match m {
+                    Some((_, Some(m))) => Some((line, m)),
+                    Some((_, None)) => {
+                        self.problem(
+                            Some(line),
+                            format!("key 'model': {text:?} fits the panel's height, which a specification fixes; write \"isotropic\" (or \"biaxial\" for a mesh stretched unevenly along its sides)"),
+                        );
+                        None
+                    }
+                    None => {
+                        self.problem(
+                            Some(line),
+                            format!("key 'model': {text:?} is not a model; write {model_what}"),
+                        );
+                        None
+                    }
                 }
             });
+        // A model defined on rectangles only is refused on a circle here,
+        // with the line, rather than on every recording.
+        let model = match (model, is_circle) {
+            (Some((line, m)), Some(true)) if m.fit_model().needs_rectangle() => {
+                let why = match m {
+                    SpecModel::Biaxial => "Tx and Ty act along the sides of a rectangle; for uneven tension on a circle use model \"isotropic\" or \"air\" with [limits] max-unevenness-percent",
+                    _ => "the prestressed plate is solved for a simply supported rectangle",
+                };
+                self.problem(
+                    Some(line),
+                    format!(
+                        "key 'model': {:?} does not apply to a circle: {why}",
+                        m.name()
+                    ),
+                );
+                None
+            }
+            (m, _) => m.map(|(_, m)| m),
+        };
 
         let panel = if shape_ok && sigma.is_some() && self.problems.len() == ok_before {
             match Panel::from_spec(&ps) {
@@ -848,11 +1067,108 @@ impl<'b> Loader<'b> {
         } else {
             None
         };
-        (panel, Some(ps), density_u, model)
+        let calibration = self.load_calibration(t, panel.as_ref(), model);
+        PanelPart {
+            panel,
+            spec: Some(ps),
+            density_u,
+            model,
+            is_circle,
+            is_square: if is_circle == Some(true) {
+                Some(false)
+            } else {
+                is_square
+            },
+            calibration,
+        }
     }
 
-    fn load_limits(&mut self, t: &Section, model: Option<SpecModel>) -> Option<Limits> {
+    /// `[panel] calibration`: a calibration file (relative paths from the
+    /// specification's folder), read and checked with
+    /// [`calibration::Calibration::parse`] and
+    /// [`calibration::Calibration::check_panel`]; the model must be
+    /// isotropic, since the factors already hold air loading and the
+    /// supports (as for `tonus fit --calibration`). Returns `Some(None)`
+    /// without the key, None when it is wrong.
+    fn load_calibration(
+        &mut self,
+        t: &Section,
+        panel: Option<&Panel>,
+        model: Option<SpecModel>,
+    ) -> Option<Option<(Arc<calibration::Loaded>, String)>> {
+        let what = "the path of a calibration file made by tonus calibrate, e.g. \"head-14in.calibration.toml\" (relative to the specification's folder)";
+        let Some((line, text)) = self.string(t, "calibration", what, false) else {
+            return if t.get("calibration").is_some() {
+                None
+            } else {
+                Some(None)
+            };
+        };
+        if text.trim().is_empty() {
+            self.problem(
+                Some(line),
+                format!("key 'calibration': must not be empty; {what}"),
+            );
+            return None;
+        }
+        let path = self.dir.join(text.trim());
+        let bytes = match std::fs::read(&path) {
+            Ok(b) => b,
+            Err(e) => {
+                self.problem(
+                    Some(line),
+                    format!(
+                        "key 'calibration': cannot read {} ({e}); give {what}",
+                        path.display()
+                    ),
+                );
+                return None;
+            }
+        };
+        let parsed = std::str::from_utf8(&bytes)
+            .map_err(|_| "not UTF-8 text".to_string())
+            .and_then(calibration::Calibration::parse);
+        let cal = match parsed {
+            Ok(c) => c,
+            Err(reason) => {
+                self.problem(
+                    Some(line),
+                    format!(
+                        "key 'calibration': {} is not a usable calibration file: {reason}; make it again with tonus calibrate",
+                        path.display()
+                    ),
+                );
+                return None;
+            }
+        };
+        if let Some(m) = model.filter(|m| *m != SpecModel::Isotropic) {
+            self.problem(
+                Some(line),
+                format!(
+                    "key 'calibration': a calibration replaces the model (its factors already hold air loading and the supports), so it goes with model = \"isotropic\", not {:?}",
+                    m.name()
+                ),
+            );
+            return None;
+        }
+        if let Some(p) = panel {
+            if let Err(e) = cal.check_panel(p, &path) {
+                self.problem(Some(line), format!("key 'calibration': {e}"));
+                return None;
+            }
+        }
+        Some(Some((
+            Arc::new(calibration::Loaded {
+                path,
+                calibration: cal,
+            }),
+            sha256_hex(&bytes),
+        )))
+    }
+
+    fn load_limits(&mut self, t: &Section, pp: &PanelPart) -> Option<Limits> {
         t.line?;
+        let model = pp.model;
         let what = "a tension with its unit, e.g. \"20N/cm\"";
         let nominal = self.quantity(t, "nominal-tension", what, true, units::parse_tension);
         let lower = self.quantity(t, "lower-tension", what, true, units::parse_tension);
@@ -906,15 +1222,44 @@ impl<'b> Loader<'b> {
         let anisotropy = match t.get("max-anisotropy-percent") {
             None => Some(None),
             Some(_) => match self.positive_number(t, "max-anisotropy-percent", "5") {
-                Some((line, a)) => {
-                    if model == Some(SpecModel::Isotropic) {
+                Some((line, a)) => match model {
+                    Some(m) if !m.measures_anisotropy() => {
                         self.problem(
                             Some(line),
-                            "key 'max-anisotropy-percent': model \"isotropic\" does not measure anisotropy, and no model of a specification does yet; remove the key".into(),
+                            format!("key 'max-anisotropy-percent': model {:?} does not measure anisotropy; write model = \"biaxial\" in [panel] (rectangles), or remove the key", m.name()),
                         );
                         None
+                    }
+                    _ => Some(Some(a)),
+                },
+                None => None,
+            },
+        };
+        let unevenness = match t.get("max-unevenness-percent") {
+            None => Some(None),
+            Some(_) => match self.positive_number(t, "max-unevenness-percent", "2") {
+                Some((line, a)) => {
+                    let shape_ok = pp.is_circle == Some(true) || pp.is_square == Some(true);
+                    let shape_known = pp.is_circle.is_some()
+                        && (pp.is_circle == Some(true) || pp.is_square.is_some());
+                    let fault = if shape_known && !shape_ok {
+                        Some("the unevenness is read from split mode pairs, which only a circle or a square panel has; for a rectangle write model = \"biaxial\" and max-anisotropy-percent".to_string())
                     } else {
-                        Some(Some(a))
+                        match model {
+                            Some(SpecModel::Biaxial) => Some("model \"biaxial\" measures the anisotropy itself; use max-anisotropy-percent".to_string()),
+                            Some(SpecModel::Stiff) => Some("the split of a pair is derived for the membrane, not for the stiff plate; use model \"isotropic\"".to_string()),
+                            _ => None,
+                        }
+                    };
+                    match fault {
+                        Some(why) => {
+                            self.problem(
+                                Some(line),
+                                format!("key 'max-unevenness-percent': {why}"),
+                            );
+                            None
+                        }
+                        None => Some(Some(a)),
                     }
                 }
                 None => None,
@@ -928,6 +1273,7 @@ impl<'b> Loader<'b> {
             lower_n_per_m: lower?.2 .0,
             upper_n_per_m: upper?.2 .0,
             max_anisotropy_percent: anisotropy?,
+            max_unevenness_percent: unevenness?,
             min_quality: min_quality?,
         })
     }
@@ -1228,6 +1574,8 @@ rule = "simple"
                 standard_uncertainty: u,
             }),
             anisotropy_percent: None,
+            unevenness_percent: None,
+            unevenness_problem: None,
             grade: Grade::Sound,
             grade_reasons: vec![],
         };
@@ -1235,6 +1583,306 @@ rule = "simple"
             decision::decide(&i, &s.limits, &s.rule).decision,
             Decision::Pass
         );
+    }
+
+    /// A 14 in head specification; `extra_panel` and `extra_limits` are
+    /// appended to their tables.
+    fn head(model: &str, extra_panel: &str, extra_limits: &str) -> String {
+        format!(
+            r#"[spec]
+name = "head-14"
+version = "1"
+[panel]
+diameter = "14in"
+areal-density = "0.26kg/m2"
+areal-density-u = "5g/m2"
+tap-at = "0.6,30"
+model = "{model}"
+{extra_panel}
+[limits]
+nominal-tension = "3000N/m"
+lower-tension = "2700N/m"
+upper-tension = "3300N/m"
+{extra_limits}
+[decision]
+rule = "guarded"
+"#
+        )
+    }
+
+    fn line_in(text: &str, prefix: &str) -> usize {
+        text.lines().position(|l| l.starts_with(prefix)).unwrap() + 1
+    }
+
+    #[test]
+    fn models_of_fit_are_accepted_by_name() {
+        let s = load(&edit("model", "model = \"biaxial\"")).unwrap();
+        assert_eq!(s.model, SpecModel::Biaxial);
+        assert_eq!(s.model.fit_model(), FitModel::Biaxial);
+        assert_eq!(s.model.name(), "biaxial");
+        let s = load(&edit("model", "model = \"stiff\"")).unwrap();
+        assert_eq!(s.model.fit_model(), FitModel::Stiff);
+        // The aliases of `tonus fit --model` too.
+        let s = load(&edit("model", "model = \"plate\"")).unwrap();
+        assert_eq!(s.model, SpecModel::Stiff);
+        let s = load(&head("air", "", "")).unwrap();
+        assert_eq!(s.model, SpecModel::Air);
+        assert_eq!(s.model.fit_model(), FitModel::AirLoaded);
+        assert_eq!(
+            load(&head("air-loaded", "", "")).unwrap().model,
+            SpecModel::Air
+        );
+        let e = err(&edit("model", "model = \"elastic\""));
+        assert!(
+            e.contains(&format!("line {}: key 'model'", line_no("model")))
+                && e.contains("\"biaxial\""),
+            "{e}"
+        );
+    }
+
+    #[test]
+    fn rectangle_models_are_refused_on_a_circle_with_the_line() {
+        for model in ["biaxial", "stiff"] {
+            let text = head(model, "", "");
+            let e = err(&text);
+            assert!(
+                e.contains(&format!(
+                    "line {}: key 'model': \"{model}\" does not apply to a circle",
+                    line_in(&text, "model")
+                )),
+                "{e}"
+            );
+        }
+        let e = err(&head("biaxial", "", ""));
+        assert!(e.contains("max-unevenness-percent"), "{e}");
+    }
+
+    #[test]
+    fn anisotropy_limit_needs_the_biaxial_model() {
+        let text = edit("model", "model = \"biaxial\"")
+            .replace("min-quality = \"fair\"", "max-anisotropy-percent = 4.5");
+        let s = load(&text).unwrap();
+        assert_eq!(s.limits.max_anisotropy_percent, Some(4.5));
+        for model in ["isotropic", "stiff"] {
+            let text = edit("model", &format!("model = \"{model}\""))
+                .replace("min-quality = \"fair\"", "max-anisotropy-percent = 5");
+            let e = err(&text);
+            assert!(
+                e.contains(&format!(
+                    "line {}: key 'max-anisotropy-percent': model \"{model}\" does not measure anisotropy",
+                    line_in(&text, "max-anisotropy-percent")
+                )),
+                "{e}"
+            );
+        }
+        let e = err(&head("air", "", "max-anisotropy-percent = 5"));
+        assert!(e.contains("key 'max-anisotropy-percent'"), "{e}");
+        let e = err(&edit("min-quality", "max-anisotropy-percent = \"5%\""));
+        assert!(
+            e.contains("key 'max-anisotropy-percent': must be a number"),
+            "{e}"
+        );
+        let e = err(&edit("min-quality", "max-anisotropy-percent = 0"));
+        assert!(e.contains("greater than zero"), "{e}");
+    }
+
+    #[test]
+    fn unevenness_limit_applies_to_circles_and_squares() {
+        for model in ["air", "isotropic"] {
+            let s = load(&head(model, "", "max-unevenness-percent = 2")).unwrap();
+            assert_eq!(s.limits.max_unevenness_percent, Some(2.0));
+            assert!(s.unevenness_applies());
+        }
+        // A square screen, the same side written two ways.
+        let square = edit("height", "height = \"0.5m\"")
+            .replace("min-quality = \"fair\"", "max-unevenness-percent = 3");
+        assert_eq!(
+            load(&square).unwrap().limits.max_unevenness_percent,
+            Some(3.0)
+        );
+        // Not a 500 × 400 mm rectangle: no pairs to split.
+        let text = edit("min-quality", "max-unevenness-percent = 3");
+        let e = err(&text);
+        assert!(
+            e.contains(&format!(
+                "line {}: key 'max-unevenness-percent': the unevenness is read from split mode pairs",
+                line_in(&text, "max-unevenness-percent")
+            )) && e.contains("biaxial"),
+            "{e}"
+        );
+        assert!(!load(GOOD).unwrap().unevenness_applies());
+        // Nor with the models that do not give pairs.
+        let e = err(&square.replace("model = \"isotropic\"", "model = \"biaxial\""));
+        assert!(
+            e.contains("key 'max-unevenness-percent'") && e.contains("max-anisotropy-percent"),
+            "{e}"
+        );
+        let e = err(&square.replace("model = \"isotropic\"", "model = \"stiff\""));
+        assert!(e.contains("key 'max-unevenness-percent'"), "{e}");
+        let e = err(&head("air", "", "max-unevenness-percent = -2"));
+        assert!(e.contains("key 'max-unevenness-percent'"), "{e}");
+    }
+
+    /// A calibration of the 14 in head at 3000 N/m with every mode 2 %
+    /// below the ideal membrane, as `tonus calibrate` would write it.
+    fn calibration_text(diameter_m: f64, sigma: f64) -> String {
+        let shape = Shape::Circle {
+            radius: Meters(diameter_m / 2.0),
+        };
+        let c = (3000.0f64 / sigma).sqrt();
+        let modes: Vec<(u32, u32, f64)> = [(0, 1), (1, 1), (2, 1), (0, 2), (3, 1), (1, 2)]
+            .iter()
+            .map(|&(m, n)| (m, n, 0.98 * c * calibration::ideal_factor(&shape, m, n)))
+            .collect();
+        let refs = [calibration::Reference {
+            file: PathBuf::from("ref.wav"),
+            sha256: sha256_hex(b"ref"),
+            modes,
+        }];
+        calibration::Calibration::from_references(shape, sigma, 3000.0, 30.0, &refs, "air")
+            .unwrap()
+            .to_toml()
+    }
+
+    #[test]
+    fn calibration_is_loaded_relative_to_the_spec_and_checked() {
+        let dir = tempfile::tempdir().unwrap();
+        let d = dir.path();
+        std::fs::create_dir(d.join("cal")).unwrap();
+        let cal = calibration_text(14.0 * 0.0254, 0.26);
+        std::fs::write(d.join("cal/head.calibration.toml"), &cal).unwrap();
+        let spec_path = d.join("head.spec.toml");
+        let write_and_load = |text: &str| {
+            std::fs::write(&spec_path, text).unwrap();
+            Spec::from_file(&spec_path)
+        };
+        let good = head(
+            "isotropic",
+            "calibration = \"cal/head.calibration.toml\"",
+            "",
+        );
+        let s = write_and_load(&good).unwrap();
+        assert_eq!(
+            s.calibration_sha256.as_deref(),
+            Some(sha256_hex(cal.as_bytes()).as_str())
+        );
+        let loaded = s.calibration.as_ref().unwrap();
+        assert_eq!(loaded.path, d.join("cal/head.calibration.toml"));
+        assert_eq!(loaded.calibration.modes.len(), 6);
+
+        let cal_line = line_in(&good, "calibration");
+        let expect = |text: &str, want: &str| {
+            let e = write_and_load(text).unwrap_err().to_string();
+            assert!(
+                e.contains(&format!("line {cal_line}: key 'calibration'")) && e.contains(want),
+                "{want}: {e}"
+            );
+        };
+        // Missing file.
+        expect(
+            &head(
+                "isotropic",
+                "calibration = \"cal/none.calibration.toml\"",
+                "",
+            ),
+            "cannot read",
+        );
+        // Broken file.
+        std::fs::write(d.join("cal/broken.calibration.toml"), "schema = 3\n[").unwrap();
+        expect(
+            &head(
+                "isotropic",
+                "calibration = \"cal/broken.calibration.toml\"",
+                "",
+            ),
+            "not a usable calibration file",
+        );
+        // Another head's calibration.
+        std::fs::write(
+            d.join("cal/13in.calibration.toml"),
+            calibration_text(13.0 * 0.0254, 0.26),
+        )
+        .unwrap();
+        expect(
+            &head(
+                "isotropic",
+                "calibration = \"cal/13in.calibration.toml\"",
+                "",
+            ),
+            "was made for a circle",
+        );
+        // A calibration replaces the air model.
+        expect(
+            &head("air", "calibration = \"cal/head.calibration.toml\"", ""),
+            "model = \"isotropic\"",
+        );
+        expect(
+            &head("isotropic", "calibration = 3", ""),
+            "must be a string",
+        );
+    }
+
+    #[test]
+    fn calibrated_uncertainty_leaves_out_the_areal_density() {
+        // 1 % from the reference, 0.5 % from the factors, 3 N/m from the
+        // fit at 3000 N/m: √(3² + 30² + 15²) = √1134 N/m.
+        let u = Spec::calibrated_tension_uncertainty(
+            &Estimate {
+                value: 3000.0,
+                standard_uncertainty: 3.0,
+            },
+            &calibration::CalibrationTerm {
+                u_rel_reference: 0.01,
+                u_rel_factors: 0.005,
+                modes: 6,
+            },
+        );
+        // Tolerance: rounding only.
+        assert!((u - 1134f64.sqrt()).abs() < 1e-9, "{u}");
+    }
+
+    /// A synthetic screen with Ty 5 % above Tx: the biaxial specification
+    /// passes it with a 5.5 % limit and fails it with 4 %, the anisotropy
+    /// entering the decision with its own uncertainty.
+    #[test]
+    fn biaxial_spec_decides_the_anisotropy_of_a_synthetic_screen() {
+        use crate::pipeline::{measure, FitOptions};
+        use crate::recording::Recording;
+        use crate::synth::{synthesise, SynthConfig};
+        let text = edit("model", "model = \"biaxial\"")
+            .replace("min-quality = \"fair\"", "max-anisotropy-percent = 5.5");
+        let s = load(&text).unwrap();
+        let panel = s.panel();
+        let mut cfg = SynthConfig::new(
+            panel.shape,
+            panel.areal_density.unwrap(),
+            crate::units::NewtonsPerMeter(1950.0),
+            panel.tap.unwrap(),
+        );
+        cfg.tension_y = Some(crate::units::NewtonsPerMeter(2050.0));
+        let rec = Recording::from_samples(
+            Path::new("biaxial.wav"),
+            synthesise(&cfg).unwrap(),
+            f64::from(cfg.sample_rate_hz),
+        );
+        let opts = FitOptions {
+            model: s.model.fit_model(),
+            ..FitOptions::default()
+        };
+        let m = measure(&rec, &panel, &opts).unwrap();
+        let input = s.decision_input(&m);
+        // 100·(1950 − 2050)/2000 = −5 %.
+        let a = input.anisotropy_percent.unwrap();
+        assert!((a.value + 5.0).abs() < 0.3, "{a:?}");
+        assert!(a.standard_uncertainty > 0.0 && a.standard_uncertainty < 0.3);
+        let v = s.decide(&m);
+        assert_eq!(v.decision, Decision::Pass, "{:?}", v.reasons);
+        assert_eq!(v.anisotropy.as_ref().unwrap().decision, "pass");
+        let mut strict = s.clone();
+        strict.limits.max_anisotropy_percent = Some(4.0);
+        let v = strict.decide(&m);
+        assert_eq!(v.decision, Decision::Fail, "{:?}", v.reasons);
+        assert!(v.reasons.iter().any(|r| r.contains("exceeds 4 %")));
     }
 
     /// End to end: a synthetic tap of the specification's screen at

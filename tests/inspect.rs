@@ -464,11 +464,11 @@ fn killed_mid_batch_keeps_every_completed_row() {
     let csv_path = out.join("inspect.csv");
     if csv_path.exists() {
         let mut r = csv::Reader::from_path(&csv_path).unwrap();
-        assert_eq!(r.headers().unwrap().len(), 16);
+        assert_eq!(r.headers().unwrap().len(), 21);
         let recs: Vec<csv::StringRecord> = r.records().map(|x| x.unwrap()).collect();
         assert!(recs.len() <= rows.len());
         for rec in &recs {
-            assert_eq!(rec.len(), 16);
+            assert_eq!(rec.len(), 21);
             assert_eq!(&rec[11], "pass");
         }
     }
@@ -606,4 +606,495 @@ fn refinement_near_limits_issue5() {
         files[0].to_str().unwrap(),
     ]);
     assert_eq!(o.status.code(), Some(2));
+}
+
+/// A synthetic 500 × 400 mm screen with Tx = `tx` and Ty = `ty` (N/m).
+fn make_biaxial(dir: &Path, name: &str, tx: f64, ty: f64) -> PathBuf {
+    let p = dir.join(name);
+    let o = tonus(&[
+        "synth",
+        "--width",
+        "500mm",
+        "--height",
+        "400mm",
+        "--areal-density",
+        "40g/m2",
+        "--tap-at",
+        "0.3,0.35",
+        "--tension",
+        &format!("{tx}N/m"),
+        "--tension-y",
+        &format!("{ty}N/m"),
+        "--snr",
+        "35",
+        "--length",
+        "1s",
+        "-o",
+        p.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    p
+}
+
+/// Runs `inspect` without history; returns the exit code and the CSV rows
+/// as (header → value) maps.
+fn inspect_rows(
+    spec: &Path,
+    out: &Path,
+    files: &[PathBuf],
+    history: Option<&Path>,
+) -> (i32, Vec<std::collections::HashMap<String, String>>) {
+    let mut cmd = Command::new(env!("CARGO_BIN_EXE_tonus"));
+    cmd.arg("inspect")
+        .arg("--spec")
+        .arg(spec)
+        .arg("--out")
+        .arg(out);
+    match history {
+        Some(h) => cmd.arg("--history").arg(h),
+        None => cmd.arg("--no-history"),
+    };
+    let o = cmd.args(files).output().unwrap();
+    let code = o.status.code().unwrap_or(-1);
+    assert!(
+        code == 0 || code == 1,
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let mut r = csv::Reader::from_path(out.join("inspect.csv")).unwrap();
+    let headers = r.headers().unwrap().clone();
+    let rows = r
+        .records()
+        .map(|rec| {
+            let rec = rec.unwrap();
+            headers
+                .iter()
+                .zip(rec.iter())
+                .map(|(h, v)| (h.to_string(), v.to_string()))
+                .collect()
+        })
+        .collect();
+    (code, rows)
+}
+
+const BIAXIAL_SPEC: &str = r#"[spec]
+name = "test-mesh"
+version = "1"
+[panel]
+shape = "rect"
+width = "500mm"
+height = "400mm"
+areal-density = "40g/m2"
+areal-density-u = "0.4g/m2"
+tap-at = "0.3,0.35"
+model = "biaxial"
+[limits]
+nominal-tension = "2000N/m"
+lower-tension = "1800N/m"
+upper-tension = "2200N/m"
+max-anisotropy-percent = LIMIT
+[decision]
+rule = "RULE"
+"#;
+
+#[test]
+fn biaxial_spec_decides_anisotropy_on_both_sides_of_the_limit() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // Anisotropy 100·(Tx − Ty)/((Tx + Ty)/2): 0 %, about −5 %, −9.5 %.
+    let files = [
+        make_biaxial(d, "a-even.wav", 2000.0, 2000.0),
+        make_biaxial(d, "b-near.wav", 2000.0, 2102.5),
+        make_biaxial(d, "c-uneven.wav", 2000.0, 2200.0),
+    ];
+    let spec = |rule: &str, limit: &str| {
+        let p = d.join(format!("mesh-{rule}-{limit}.spec.toml"));
+        std::fs::write(
+            &p,
+            BIAXIAL_SPEC.replace("RULE", rule).replace("LIMIT", limit),
+        )
+        .unwrap();
+        p
+    };
+    let num = |row: &std::collections::HashMap<String, String>, k: &str| -> f64 {
+        row[k].parse().unwrap_or_else(|_| panic!("{k}: {row:?}"))
+    };
+    let db = d.join("h.sqlite");
+    let out = d.join("out-simple");
+    let (code, rows) = inspect_rows(&spec("simple", "5"), &out, &files[..], Some(&db));
+    assert_eq!(code, 1);
+    let decisions: Vec<&str> = rows.iter().map(|r| r["decision"].as_str()).collect();
+    // The mean tensions (2000, 2051, 2100 N/m) are all inside the limits:
+    // only the anisotropy fails the third.
+    assert_eq!(decisions[0], "pass", "{rows:?}");
+    assert_eq!(decisions[2], "fail", "{rows:?}");
+    assert!(rows[2]["reasons"].contains("anisotropy"), "{rows:?}");
+    let truth = [0.0, -200.0 * 102.5 / 4102.5, -200.0 * 200.0 / 4200.0];
+    for (row, a) in rows.iter().zip(truth) {
+        let (v, u) = (
+            num(row, "anisotropy_percent"),
+            num(row, "anisotropy_u_percent"),
+        );
+        assert!(u > 0.0 && u < 0.3, "{row:?}");
+        assert!((v - a).abs() < 0.3, "{v} against {a}: {row:?}");
+        assert_eq!(row["unevenness_percent"], "", "{row:?}");
+    }
+    // The JSON record carries the judgement with its own guard band.
+    let jsonl = std::fs::read_to_string(out.join("inspect.jsonl")).unwrap();
+    let recs: Vec<serde_json::Value> = jsonl
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    assert_eq!(recs[2]["decision"]["anisotropy"]["decision"], "fail");
+    assert_eq!(recs[2]["decision"]["anisotropy"]["limit_percent"], 5.0);
+    assert_eq!(recs[2]["spec"]["model"], "biaxial");
+    // The history keeps the anisotropy.
+    let h = tonus::history::History::open(&db).unwrap();
+    let stored = h.query(&tonus::history::Filter::default()).unwrap();
+    assert_eq!(stored.len(), 3);
+    // Rows are stored as decided; recordings run in parallel, so find the
+    // third by its path.
+    let third = stored
+        .iter()
+        .find(|s| s.row.recording_path.ends_with("c-uneven.wav"))
+        .unwrap();
+    assert!(
+        (third.row.anisotropy_percent.unwrap() - num(&rows[2], "anisotropy_percent")).abs() < 1e-3
+    );
+    // The report draws the distribution against the limit.
+    let md = std::fs::read_to_string(out.join("batch-report.md")).unwrap();
+    assert!(md.contains("Limit |a| ≤ 5 %"), "{md}");
+    assert!(md.contains("1 beyond it"), "{md}");
+    let png = std::fs::read(out.join("batch-anisotropy.png")).unwrap();
+    assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n");
+
+    // Guarded, with the limit set at the near screen's own measured |a|:
+    // it lies within the guard band k·u of the limit, so it cannot be
+    // decided; the even screen still passes and the uneven one fails.
+    let near = num(&rows[1], "anisotropy_percent").abs();
+    let limit = format!("{near:.3}");
+    let (_, rows) = inspect_rows(
+        &spec("guarded", &limit),
+        &d.join("out-guarded"),
+        &files,
+        None,
+    );
+    let decisions: Vec<&str> = rows.iter().map(|r| r["decision"].as_str()).collect();
+    assert_eq!(decisions, ["pass", "indeterminate", "fail"], "{rows:?}");
+    assert!(
+        rows[1]["reasons"].contains("within the guard band")
+            && rows[1]["reasons"].contains("anisotropy"),
+        "{rows:?}"
+    );
+    // Under the simple rule a limit a little above and below it decides.
+    let above = format!("{:.3}", near + 0.05);
+    let below = format!("{:.3}", near - 0.05);
+    let (_, rows) = inspect_rows(
+        &spec("simple", &above),
+        &d.join("out-above"),
+        &files[1..2],
+        None,
+    );
+    assert_eq!(rows[0]["decision"], "pass", "{rows:?}");
+    let (_, rows) = inspect_rows(
+        &spec("simple", &below),
+        &d.join("out-below"),
+        &files[1..2],
+        None,
+    );
+    assert_eq!(rows[0]["decision"], "fail", "{rows:?}");
+}
+
+/// A synthetic 14 in head of the drum-head example specification
+/// (0.19 mm film at 1390 kg/m³, air-loaded), tapped off the axes.
+fn make_head(dir: &Path, name: &str, skew: Option<&str>) -> PathBuf {
+    let p = dir.join(name);
+    let mut args = vec![
+        "synth",
+        "--shape",
+        "circle",
+        "--diameter",
+        "14in",
+        "--thickness",
+        "0.19mm",
+        "--density",
+        "1390kg/m3",
+        "--tap-at",
+        "0.6,30",
+        "--air",
+        "--tension",
+        "3000N/m",
+        "--snr",
+        "30",
+        "--length",
+        "2s",
+        "-o",
+        p.to_str().unwrap(),
+    ];
+    if let Some(s) = skew {
+        args.extend_from_slice(&["--tension-skew", s]);
+    }
+    let o = tonus(&args);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    p
+}
+
+fn example_spec(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("specs")
+        .join(name)
+}
+
+#[test]
+fn unevenness_limit_on_a_synthetic_head_with_and_without_skew() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // ε = 2 %: the spread 2ε = 4 % is over the example's 2 % limit.
+    let files = [
+        make_head(d, "even.wav", None),
+        make_head(d, "skewed.wav", Some("2%")),
+    ];
+    let out = d.join("out");
+    let (code, rows) = inspect_rows(&example_spec("drumhead-14in.spec.toml"), &out, &files, None);
+    assert_eq!(code, 1);
+    // The even head resolves no pair: decided on its tension, and said so.
+    assert_eq!(rows[0]["decision"], "pass", "{rows:?}");
+    assert_eq!(rows[0]["unevenness_percent"], "");
+    assert!(
+        rows[0]["reasons"].contains("evenness not measurable: no split pair resolved"),
+        "{rows:?}"
+    );
+    // The skewed head: same tension, uneven beyond the limit.
+    assert_eq!(rows[1]["decision"], "fail", "{rows:?}");
+    let s: f64 = rows[1]["unevenness_percent"].parse().unwrap();
+    let u: f64 = rows[1]["unevenness_u_percent"].parse().unwrap();
+    assert!((s - 4.0).abs() < 0.5, "{s}");
+    assert!(u > 0.0 && u < 0.5, "{u}");
+    for row in &rows {
+        let t: f64 = row["tension_n_per_m"].parse().unwrap();
+        assert!((t / 3000.0 - 1.0).abs() < 0.01, "{row:?}");
+    }
+    assert!(rows[1]["reasons"].contains("unevenness |"), "{rows:?}");
+    let md = std::fs::read_to_string(out.join("batch-report.md")).unwrap();
+    assert!(md.contains("Limit 2 % (red line)"), "{md}");
+    // A head far more uneven (ε = 3.2 %) is never passed, whether its
+    // pair is evaluated (fail) or found but not evaluable (not measured).
+    let worse = make_head(d, "worse.wav", Some("3.2%"));
+    let (_, rows) = inspect_rows(
+        &example_spec("drumhead-14in.spec.toml"),
+        &d.join("out-worse"),
+        &[worse],
+        None,
+    );
+    assert!(
+        rows[0]["decision"] == "fail" || rows[0]["decision"] == "not_measured",
+        "{rows:?}"
+    );
+    assert!(
+        md.contains("1 measured recording(s) resolved no split pair"),
+        "{md}"
+    );
+    assert!(out.join("batch-unevenness.png").exists());
+}
+
+#[test]
+fn bad_model_limit_and_calibration_name_the_key_and_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let f = make(d, "x.wav", "2000N/m");
+    let head = std::fs::read_to_string(example_spec("drumhead-14in.spec.toml")).unwrap();
+    let line_of =
+        |text: &str, prefix: &str| text.lines().position(|l| l.starts_with(prefix)).unwrap() + 1;
+    std::fs::write(
+        d.join("broken.calibration.toml"),
+        "schema = \"tonus.calibration\"\nversion = 1\n",
+    )
+    .unwrap();
+    let biaxial_circle = head.replace("model = \"air\"", "model = \"biaxial\"");
+    let aniso_isotropic = SPEC
+        .replace("RULE", "simple")
+        .replace("[decision]", "max-anisotropy-percent = 5\n[decision]");
+    let missing_cal = head.replace(
+        "model = \"air\"",
+        "model = \"isotropic\"\ncalibration = \"none.calibration.toml\"",
+    );
+    let broken_cal = head.replace(
+        "model = \"air\"",
+        "model = \"isotropic\"\ncalibration = \"broken.calibration.toml\"",
+    );
+    let cases = [
+        (&biaxial_circle, "model", "does not apply to a circle"),
+        (
+            &aniso_isotropic,
+            "max-anisotropy-percent",
+            "does not measure anisotropy",
+        ),
+        (&missing_cal, "calibration", "cannot read"),
+        (&broken_cal, "calibration", "not a usable calibration file"),
+    ];
+    for (text, key, what) in cases {
+        let s = d.join("bad.spec.toml");
+        std::fs::write(&s, text).unwrap();
+        let o = tonus(&[
+            "inspect",
+            "--spec",
+            s.to_str().unwrap(),
+            "--no-history",
+            "--out",
+            d.join("o").to_str().unwrap(),
+            f.to_str().unwrap(),
+        ]);
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{err}");
+        let line = line_of(text, key);
+        assert!(
+            err.contains(&format!("line {line}: key '{key}'")) && err.contains(what),
+            "{key}: {err}"
+        );
+        assert_eq!(err.trim().lines().count(), 1, "{err}");
+        assert!(!err.contains("panicked"));
+        assert!(!d.join("o").join("inspect.csv").exists(), "nothing written");
+    }
+}
+
+/// Sends `sig` to a child process.
+fn signal(child: &Child, sig: i32) {
+    let pid = i32::try_from(child.id()).unwrap();
+    // SAFETY: kill(2) on the pid of our own child, which has not been
+    // waited for yet, so the pid cannot have been reused.
+    let rc = unsafe { libc::kill(pid, sig) };
+    assert_eq!(rc, 0, "kill failed");
+}
+
+#[test]
+fn ctrl_c_ends_a_watch_with_the_report() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let inbox = d.join("inbox");
+    std::fs::create_dir(&inbox).unwrap();
+    let s = spec(d, "guarded");
+    let out = d.join("out");
+    // No limit: only the signal (or, if it is lost, the timeout) ends it.
+    let mut child = Command::new(env!("CARGO_BIN_EXE_tonus"))
+        .args(["inspect", "--spec", s.to_str().unwrap(), "--watch"])
+        .arg(&inbox)
+        .args(["--watch-timeout", "170s", "--watch-interval", "50ms"])
+        .arg("--no-history")
+        .arg("--out")
+        .arg(&out)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let (tx, rx) = mpsc::channel();
+    forward(child.stdout.take().unwrap(), "out", tx.clone());
+    forward(child.stderr.take().unwrap(), "err", tx);
+    let mut seen = Vec::new();
+    wait_for_line(
+        &rx,
+        "err",
+        |l| l.starts_with("watching"),
+        PATIENCE,
+        &mut seen,
+    );
+    make(&inbox, "new.wav", "2000N/m");
+    wait_for_line(&rx, "out", |l| l.contains("new.wav"), PATIENCE, &mut seen);
+    signal(&child, libc::SIGINT);
+    let status = wait_bounded(&mut child, PATIENCE);
+    let note = wait_for_line(
+        &rx,
+        "err",
+        |l| l.starts_with("watch ended"),
+        PATIENCE,
+        &mut seen,
+    );
+    assert_eq!(status.code(), Some(130), "{seen:#?}");
+    assert!(
+        note.contains("stopped by SIGINT") && note.contains("1 recording(s) decided"),
+        "{note}"
+    );
+    let md = std::fs::read_to_string(out.join("batch-report.md")).unwrap();
+    assert!(md.contains("interrupted by SIGINT"), "{md}");
+    assert!(md.contains("the watch ended after 1 recording(s)"), "{md}");
+    assert!(md.contains("| pass | 1 |"), "{md}");
+    assert!(out.join("batch-report.html").exists());
+    let rows = csv::Reader::from_path(out.join("inspect.csv"))
+        .unwrap()
+        .records()
+        .count();
+    assert_eq!(rows, 1);
+}
+
+#[test]
+fn ctrl_c_mid_batch_finishes_in_flight_and_writes_the_report() {
+    const BATCH: usize = 1500;
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let one = make(d, "one.wav", "2000N/m");
+    let batch = d.join("batch");
+    std::fs::create_dir(&batch).unwrap();
+    for i in 0..BATCH {
+        let p = batch.join(format!("r{i:04}.wav"));
+        if std::fs::hard_link(&one, &p).is_err() {
+            std::fs::copy(&one, &p).unwrap();
+        }
+    }
+    let s = spec(d, "guarded");
+    let out = d.join("out");
+    let db = d.join("h.sqlite");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_tonus"))
+        .args(["inspect", "--spec", s.to_str().unwrap(), "--out"])
+        .arg(&out)
+        .arg("--history")
+        .arg(&db)
+        .arg(&batch)
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let deadline = Instant::now() + PATIENCE;
+    while history_rows(&db) == 0 {
+        assert!(
+            Instant::now() < deadline,
+            "no history row within {PATIENCE:?}"
+        );
+        assert!(child.try_wait().unwrap().is_none(), "tonus ended early");
+        std::thread::sleep(Duration::from_millis(10));
+    }
+    signal(&child, libc::SIGINT);
+    let status = wait_bounded(&mut child, PATIENCE);
+    let mut err = String::new();
+    std::io::Read::read_to_string(&mut child.stderr.take().unwrap(), &mut err).unwrap();
+    assert_eq!(status.code(), Some(130), "{err}");
+    let stored = history_rows(&db) as usize;
+    assert!(
+        stored < BATCH,
+        "the batch finished before the signal; make it larger"
+    );
+    // Every decided recording is in the history, the CSV, the JSON Lines
+    // and the report, whole, and nothing else.
+    let recs: Vec<csv::StringRecord> = csv::Reader::from_path(out.join("inspect.csv"))
+        .unwrap()
+        .records()
+        .map(|r| r.unwrap())
+        .collect();
+    assert_eq!(recs.len(), stored);
+    assert!(recs.iter().all(|r| r.len() == 22 && &r[11] == "pass"));
+    let jsonl = std::fs::read_to_string(out.join("inspect.jsonl")).unwrap();
+    assert_eq!(jsonl.lines().count(), stored);
+    let md = std::fs::read_to_string(out.join("batch-report.md")).unwrap();
+    assert!(md.contains("interrupted by SIGINT"), "{md}");
+    assert!(
+        md.contains(&format!("{stored} of {BATCH} recordings were decided")),
+        "{md}"
+    );
+    assert!(md.contains(&format!("| pass | {stored} |")), "{md}");
+    assert!(
+        err.contains(&format!("{stored} of {BATCH} recording(s) decided")),
+        "{err}"
+    );
+    for e in std::fs::read_dir(&out).unwrap() {
+        let name = e.unwrap().file_name().to_string_lossy().into_owned();
+        assert!(!name.contains(".part"), "{name}");
+    }
 }

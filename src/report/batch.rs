@@ -14,7 +14,14 @@
 //!   [`crate::stats`]);
 //! - Cp, Cpk (σ̂ = MR̄/d₂) and Pp, Ppk (σ = s), with their formulas
 //!   (e-Handbook §6.1.6);
-//! - the anisotropy distribution where the model measures it (biaxial);
+//! - the anisotropy distribution where the model measures it (biaxial),
+//!   against ± the specification's limit, with the per-recording
+//!   judgements against it;
+//! - the unevenness distribution (the spread 2|ε| from resolved split
+//!   pairs, circle or square panel) against its limit, and how many
+//!   recordings resolved no pair;
+//! - when the batch was stopped by a signal, how many recordings of how
+//!   many were decided;
 //! - the recordings that were not measured, with their reasons;
 //! - every recording's decision.
 //!
@@ -67,6 +74,16 @@ pub struct BatchEntry {
     pub anisotropy_percent: Option<f64>,
     /// Its standard uncertainty, percent.
     pub anisotropy_u_percent: Option<f64>,
+    /// The anisotropy judgement against the limit (`pass`, `fail`,
+    /// `indeterminate`), when the specification limits it.
+    pub anisotropy_decision: Option<String>,
+    /// Unevenness, the spread 2|ε| from resolved split pairs, percent.
+    pub unevenness_percent: Option<f64>,
+    /// Its standard uncertainty, percent.
+    pub unevenness_u_percent: Option<f64>,
+    /// The unevenness judgement against the limit, when limited and
+    /// measured.
+    pub unevenness_decision: Option<String>,
     /// Quality grade of the fit.
     pub grade: Option<String>,
     /// Why it was not measured, or the error.
@@ -106,6 +123,17 @@ pub struct BatchSummary {
     pub upper_n_per_m: f64,
     /// Largest anisotropy allowed, percent, if the specification sets one.
     pub max_anisotropy_percent: Option<f64>,
+    /// Largest unevenness (spread 2|ε|) allowed, percent, if set.
+    pub max_unevenness_percent: Option<f64>,
+    /// The calibration file and its SHA-256, if the specification names
+    /// one.
+    pub calibration: Option<String>,
+    /// Set when a signal stopped the batch before every recording was
+    /// decided.
+    pub interrupted: Option<Interruption>,
+    /// The unevenness from split pairs applies: a circle or a square
+    /// panel, measured with a membrane model (isotropic or air).
+    pub unevenness_applies: bool,
     /// When the report was made (RFC 3339).
     pub generated: String,
     /// Station name, if given.
@@ -114,6 +142,19 @@ pub struct BatchSummary {
     pub operator: Option<String>,
     /// Every recording, in batch order.
     pub entries: Vec<BatchEntry>,
+}
+
+/// A batch stopped by a signal.
+#[derive(Debug, Clone)]
+pub struct Interruption {
+    /// The signal's name, e.g. `SIGINT`.
+    pub signal: String,
+    /// Its number (exit status 128 + this).
+    pub signal_number: i32,
+    /// Recordings decided before the stop.
+    pub decided: usize,
+    /// Recordings the batch was given (None for the watch mode).
+    pub total: Option<usize>,
 }
 
 /// File names of the report, inside the output folder.
@@ -126,6 +167,8 @@ pub const HISTOGRAM_NAME: &str = "batch-tension-spread.png";
 pub const RUN_CHART_NAME: &str = "batch-tension-run.png";
 /// Histogram of the anisotropy.
 pub const ANISOTROPY_NAME: &str = "batch-anisotropy.png";
+/// Histogram of the unevenness.
+pub const UNEVENNESS_NAME: &str = "batch-unevenness.png";
 
 /// Width of every picture, pixels.
 pub const PICTURE_WIDTH_PX: u32 = 1200;
@@ -308,6 +351,8 @@ struct HistogramPicture<'a> {
     anchor: (f64, f64),
     /// About how many bins the view should hold.
     bin_count: usize,
+    /// Decimals of the value axis labels.
+    x_digits: usize,
 }
 
 /// Equal bins covering `view`, one edge at `anchor.0` and a whole number
@@ -389,7 +434,7 @@ fn histogram_png(h: &HistogramPicture<'_>) -> std::result::Result<Vec<u8>, Strin
                 }
             })
             .x_labels(10)
-            .x_label_formatter(&|v| format!("{v:.0}"))
+            .x_label_formatter(&|v| format!("{v:.*}", h.x_digits))
             .draw()
             .map_err(draw_err)?;
         for (i, &c) in hist.counts.iter().enumerate() {
@@ -876,6 +921,7 @@ fn pictures(s: &BatchSummary) -> std::result::Result<Pictures, String> {
             view: value_view(&values, s.lower_n_per_m, s.upper_n_per_m),
             anchor: (s.lower_n_per_m, s.upper_n_per_m - s.lower_n_per_m),
             bin_count: bin_count(values.len()),
+            x_digits: 0,
             values: values.clone(),
             marks,
         })?;
@@ -903,28 +949,80 @@ fn pictures(s: &BatchSummary) -> std::result::Result<Pictures, String> {
     if !aniso.is_empty() {
         let amax = aniso.iter().fold(0.0f64, |a, &b| a.max(b.abs()));
         let lim = s.max_anisotropy_percent.unwrap_or(amax.max(1.0));
+        // Labels alternate between two rows in this order: the mean sits
+        // in the other row from the limits and from 0.
         let mut marks = vec![(0.0, "0 %".to_string(), NOMINAL, true)];
+        if let Some(m) = stats::mean(&aniso) {
+            marks.push((m, format!("mean {m:.2} %"), CENTRE, true));
+        }
         if let Some(m) = s.max_anisotropy_percent {
-            marks.push((m, format!("+{m:.1} %"), LIMIT, false));
-            marks.push((-m, format!("−{m:.1} %"), LIMIT, false));
+            marks.push((m, format!("limit +{m} %"), LIMIT, false));
+            marks.push((-m, format!("limit −{m} %"), LIMIT, false));
         }
         let png = histogram_png(&HistogramPicture {
             title: format!("Anisotropy — {} v{}", s.spec_name, s.spec_version),
             subtitle: format!(
-                "100·(Tx − Ty)/((Tx + Ty)/2) · {} measured recordings",
-                aniso.len()
+                "100·(Tx − Ty)/((Tx + Ty)/2) · {} measured recordings{}",
+                aniso.len(),
+                s.max_anisotropy_percent
+                    .map(|m| format!(" · limit |a| ≤ {m} % · rule {}", s.rule))
+                    .unwrap_or_default()
             ),
             x_label: "anisotropy [%]",
             view: value_view(&aniso, -lim, lim),
             anchor: (-lim, 2.0 * lim),
             bin_count: bin_count(aniso.len()),
+            x_digits: 1,
             values: aniso,
             marks,
         })?;
         items.push((
             ANISOTROPY_NAME,
             png,
-            "Histogram of the anisotropy".to_string(),
+            "Histogram of the anisotropy against the limits".to_string(),
+        ));
+    }
+    let uneven: Vec<f64> = s
+        .entries
+        .iter()
+        .filter(|e| e.measured())
+        .filter_map(|e| e.unevenness_percent)
+        .filter(|a| a.is_finite())
+        .collect();
+    if !uneven.is_empty() {
+        let vmax = uneven.iter().fold(0.0f64, |a, &b| a.max(b));
+        let lim = s.max_unevenness_percent.unwrap_or(vmax.max(1.0));
+        let mut marks = Vec::new();
+        if let Some(m) = s.max_unevenness_percent {
+            marks.push((m, format!("limit {m} %"), LIMIT, false));
+        }
+        if let Some(m) = stats::mean(&uneven) {
+            marks.push((m, format!("mean {m:.2} %"), CENTRE, true));
+        }
+        let png = histogram_png(&HistogramPicture {
+            title: format!("Unevenness — {} v{}", s.spec_name, s.spec_version),
+            subtitle: format!(
+                "spread 2|ε| from resolved split pairs · {} of {} measured recordings{}",
+                uneven.len(),
+                measured(s).len(),
+                s.max_unevenness_percent
+                    .map(|m| format!(" · limit {m} % · rule {}", s.rule))
+                    .unwrap_or_default()
+            ),
+            x_label: "unevenness, tightest over slackest direction − 1 [%]",
+            // From 0 to the limit or the largest value: the limit is
+            // one-sided, so a tolerance "width" says little here.
+            view: value_view(&uneven, 0.0, lim.max(vmax)),
+            anchor: (0.0, lim),
+            bin_count: bin_count(uneven.len()),
+            x_digits: 1,
+            values: uneven,
+            marks,
+        })?;
+        items.push((
+            UNEVENNESS_NAME,
+            png,
+            "Histogram of the unevenness against the limit".to_string(),
         ));
     }
     Ok(Pictures { items })
@@ -949,6 +1047,24 @@ fn sections(s: &BatchSummary, pics: &Pictures) -> Vec<(String, String)> {
 
     // What was decided, by which rule.
     let mut b = String::new();
+    if let Some(i) = &s.interrupted {
+        let _ = writeln!(
+            b,
+            "**The run was interrupted by {}**: {}. The report covers the recordings decided before the stop.\n",
+            i.signal,
+            match i.total {
+                Some(t) => format!(
+                    "{} of {t} recordings were decided, {} were not",
+                    i.decided,
+                    t.saturating_sub(i.decided)
+                ),
+                None => format!(
+                    "the watch ended after {} recording(s); files that landed later were not decided",
+                    i.decided
+                ),
+            }
+        );
+    }
     let _ = writeln!(
         b,
         "Specification **{}** version {} (SHA-256 `{}`), model {}, decided by the **{}** rule: {}",
@@ -961,13 +1077,20 @@ fn sections(s: &BatchSummary, pics: &Pictures) -> Vec<(String, String)> {
     );
     let _ = writeln!(
         b,
-        "\nLimits: L = {:.1} N/m, H = {:.1} N/m, nominal {:.1} N/m; expanded uncertainty with k = {}.{}",
+        "\nLimits: L = {:.1} N/m, H = {:.1} N/m, nominal {:.1} N/m; expanded uncertainty with k = {}.{}{}{}",
         s.lower_n_per_m,
         s.upper_n_per_m,
         s.nominal_n_per_m,
         s.coverage_factor,
         s.max_anisotropy_percent
             .map(|a| format!(" Largest anisotropy {a} %."))
+            .unwrap_or_default(),
+        s.max_unevenness_percent
+            .map(|a| format!(" Largest unevenness {a} %."))
+            .unwrap_or_default(),
+        s.calibration
+            .as_ref()
+            .map(|c| format!(" Calibration `{c}`."))
             .unwrap_or_default()
     );
     let _ = writeln!(
@@ -1138,15 +1261,90 @@ fn sections(s: &BatchSummary, pics: &Pictures) -> Vec<(String, String)> {
         let a: Vec<f64> = aniso.iter().filter_map(|e| e.anisotropy_percent).collect();
         let _ = writeln!(
             b,
-            "Anisotropy 100·(Tx − Ty)/((Tx + Ty)/2) of {} recordings: mean {} %, s = {} %, range {} … {} %.",
+            "Anisotropy 100·(Tx − Ty)/((Tx + Ty)/2) of {} recordings: mean {} %, s = {} %, range {} … {} %; typical standard uncertainty {} %.",
             a.len(),
             opt(stats::mean(&a), 2),
             opt(stats::std_dev(&a), 2),
             opt(a.iter().copied().reduce(f64::min), 2),
-            opt(a.iter().copied().reduce(f64::max), 2)
+            opt(a.iter().copied().reduce(f64::max), 2),
+            opt(median(aniso.iter().filter_map(|e| e.anisotropy_u_percent)), 2)
         );
+        match s.max_anisotropy_percent {
+            Some(m) => {
+                let _ = writeln!(
+                    b,
+                    "\nLimit |a| ≤ {m} % (red lines at ±{m} %), judged under the {} rule with each recording's own uncertainty: {}.",
+                    s.rule,
+                    judgement_tally(aniso.iter().filter_map(|e| e.anisotropy_decision.as_deref()))
+                );
+            }
+            None => b.push_str("\nThe specification sets no anisotropy limit.\n"),
+        }
     }
     out.push(("Anisotropy".to_string(), b));
+
+    // Unevenness.
+    let mut b = String::new();
+    let uneven: Vec<&BatchEntry> = s
+        .entries
+        .iter()
+        .filter(|e| e.measured() && e.unevenness_percent.is_some())
+        .collect();
+    let unresolved = pts.len() - uneven.len();
+    if uneven.is_empty() && !s.unevenness_applies {
+        let _ = writeln!(
+            b,
+            "The unevenness is read from split mode pairs of a circle or a square panel measured with the isotropic or air model; it does not apply to this specification{}.",
+            if s.model == "biaxial" {
+                " (the anisotropy above is its measure of uneven tension)"
+            } else {
+                ""
+            }
+        );
+    } else if uneven.is_empty() {
+        let _ = writeln!(
+            b,
+            "No measured recording resolved a split mode pair, so there is no unevenness distribution for this batch (the unevenness is read from split pairs of a circle or a square panel).{}",
+            s.max_unevenness_percent
+                .map(|m| format!(" The limit {m} % could not be applied: those recordings were decided on the tension alone, with the reason \"evenness not measurable: no split pair resolved\"."))
+                .unwrap_or_default()
+        );
+    } else {
+        if has_pic(UNEVENNESS_NAME) {
+            let _ = writeln!(b, "![Unevenness distribution]({UNEVENNESS_NAME})\n");
+        }
+        let a: Vec<f64> = uneven.iter().filter_map(|e| e.unevenness_percent).collect();
+        let _ = writeln!(
+            b,
+            "Unevenness, the spread 2|ε| of the principal tensions (tightest over slackest direction, minus one, to first order), of {} recordings: mean {} %, s = {} %, range {} … {} %; typical standard uncertainty {} %.",
+            a.len(),
+            opt(stats::mean(&a), 2),
+            opt(stats::std_dev(&a), 2),
+            opt(a.iter().copied().reduce(f64::min), 2),
+            opt(a.iter().copied().reduce(f64::max), 2),
+            opt(median(uneven.iter().filter_map(|e| e.unevenness_u_percent)), 2)
+        );
+        if let Some(m) = s.max_unevenness_percent {
+            let _ = writeln!(
+                b,
+                "\nLimit {m} % (red line), judged under the {} rule with each recording's own uncertainty: {}.",
+                s.rule,
+                judgement_tally(uneven.iter().filter_map(|e| e.unevenness_decision.as_deref()))
+            );
+        }
+        if unresolved > 0 {
+            let _ = writeln!(
+                b,
+                "\n{unresolved} measured recording(s) resolved no split pair: evenness not measurable{}.",
+                if s.max_unevenness_percent.is_some() {
+                    ", decided on the tension alone"
+                } else {
+                    ""
+                }
+            );
+        }
+    }
+    out.push(("Unevenness".to_string(), b));
 
     // Not measured.
     let mut b = String::new();
@@ -1205,6 +1403,34 @@ fn sections(s: &BatchSummary, pics: &Pictures) -> Vec<(String, String)> {
     }
     out.push(("Every recording".to_string(), b));
     out
+}
+
+/// Median of some values (None when there are none).
+fn median(values: impl Iterator<Item = f64>) -> Option<f64> {
+    let mut v: Vec<f64> = values.filter(|x| x.is_finite()).collect();
+    if v.is_empty() {
+        return None;
+    }
+    v.sort_by(f64::total_cmp);
+    let n = v.len();
+    Some(if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
+    })
+}
+
+/// "12 within the limit, 3 beyond it, 2 in the guard band".
+fn judgement_tally<'a>(decisions: impl Iterator<Item = &'a str>) -> String {
+    let (mut pass, mut fail, mut band) = (0, 0, 0);
+    for d in decisions {
+        match d {
+            "pass" => pass += 1,
+            "fail" => fail += 1,
+            _ => band += 1,
+        }
+    }
+    format!("{pass} within the limit, {fail} beyond it, {band} in the guard band (indeterminate)")
 }
 
 fn short_hash(h: &str) -> String {
@@ -1417,7 +1643,12 @@ pub fn write_batch_report(dir: &Path, s: &BatchSummary) -> Result<Vec<PathBuf>> 
     }
     // Pictures from an earlier batch that this one does not have (no
     // anisotropy, nothing measured) would be misleading beside it.
-    for name in [HISTOGRAM_NAME, RUN_CHART_NAME, ANISOTROPY_NAME] {
+    for name in [
+        HISTOGRAM_NAME,
+        RUN_CHART_NAME,
+        ANISOTROPY_NAME,
+        UNEVENNESS_NAME,
+    ] {
         if !pics.items.iter().any(|p| p.0 == name) {
             let _ = std::fs::remove_file(dir.join(name));
         }
@@ -1658,6 +1889,44 @@ mod tests {
             "{md}"
         );
         assert!(md.contains("Only 20 measured recordings"));
+        assert!(md.contains("Limit |a| ≤ 5 %"), "{md}");
+    }
+
+    #[test]
+    fn unevenness_and_an_interruption_are_reported() {
+        let mut e: Vec<BatchEntry> = (0..12)
+            .map(|i| BatchEntry {
+                unevenness_percent: Some(0.5 + 0.25 * i as f64),
+                unevenness_u_percent: Some(0.2),
+                unevenness_decision: Some(if i < 8 { "pass" } else { "fail" }.into()),
+                ..entry(&format!("h{i}.wav"), "pass", Some(2000.0))
+            })
+            .collect();
+        e.push(entry("even.wav", "pass", Some(2010.0)));
+        let mut s = summary(e);
+        s.max_unevenness_percent = Some(2.5);
+        s.unevenness_applies = true;
+        s.interrupted = Some(Interruption {
+            signal: "SIGINT".into(),
+            signal_number: 2,
+            decided: 13,
+            total: Some(40),
+        });
+        let dir = tempfile::tempdir().unwrap();
+        write_batch_report(dir.path(), &s).unwrap();
+        assert!(dir.path().join(UNEVENNESS_NAME).exists());
+        let md = std::fs::read_to_string(dir.path().join(MARKDOWN_NAME)).unwrap();
+        assert!(md.contains("interrupted by SIGINT"), "{md}");
+        assert!(
+            md.contains("13 of 40 recordings were decided, 27 were not"),
+            "{md}"
+        );
+        assert!(md.contains("of 12 recordings: mean 1.88 %"), "{md}");
+        assert!(md.contains("8 within the limit, 4 beyond it"), "{md}");
+        assert!(
+            md.contains("1 measured recording(s) resolved no split pair"),
+            "{md}"
+        );
     }
 
     #[test]
