@@ -62,42 +62,94 @@ pub struct AxisEvidence {
     pub detail: String,
 }
 
-/// Residual sum of squares, dB², of levels against the predicted
-/// couplings 20·log₁₀|φ(tap)·φ(pickup)| plus a fitted common gain.
-fn level_misfit(
-    levels: &[((u32, u32), f64)],
-    shape: &Shape,
-    tap: Point,
-    pickup: Option<Point>,
-) -> f64 {
-    let d: Vec<f64> = levels
-        .iter()
-        .map(|&((m, n), level)| {
-            let c = shape.mode_shape(m, n, tap)
-                * pickup.map(|p| shape.mode_shape(m, n, p)).unwrap_or(1.0);
-            level - 20.0 * c.abs().max(COUPLING_FLOOR).log10()
-        })
-        .collect();
-    let g = d.iter().sum::<f64>() / d.len().max(1) as f64;
-    d.iter().map(|x| (x - g).powi(2)).sum()
+/// One partial for the axis tie-break: its label, frequency and level.
+#[derive(Debug, Clone, Copy)]
+pub struct LevelObs {
+    /// The mode (m, n) as labelled.
+    pub mode: (u32, u32),
+    /// Measured frequency, Hz.
+    pub frequency_hz: f64,
+    /// Measured level, dB.
+    pub level_db: f64,
 }
 
-/// Compares the labelling of `levels` ((m, n), level dB) with its swap
-/// (n, m) through the expected amplitudes at the tap and pickup points.
-/// Both labellings predict the same frequencies, so everything that
-/// depends on frequency alone (tap spectrum, damping, microphone) is the
-/// same for both and only the mode shapes at the two points differ. With
-/// Gaussian level errors of [`LEVEL_SCATTER_DB`] and a common gain fitted
-/// for each, ln L = −SS/(2·s²) + const, so
+/// Most degree of the level trend in ln f fitted beside the couplings.
+pub const LEVEL_TREND_DEGREE: usize = 2;
+
+/// Residual sum of squares, dB², of levels against the predicted
+/// couplings 20·log₁₀|φ(tap)·φ(pickup)| plus a smooth trend in frequency:
+/// a polynomial in ln f of degree [`LEVEL_TREND_DEGREE`] (lower when few
+/// partials), fitted by least squares. The trend carries what depends on
+/// frequency alone — the tap's force spectrum, the decay that lowers a
+/// partial's peak, the microphone — which falls by tens of dB across a
+/// screen's band; a constant gain alone leaves that fall in the residuals,
+/// where it can outweigh the coupling pattern the tie-break rests on.
+fn level_misfit(levels: &[LevelObs], shape: &Shape, tap: Point, pickup: Option<Point>) -> f64 {
+    let d: Vec<f64> = levels
+        .iter()
+        .map(|o| {
+            let (m, n) = o.mode;
+            let c = shape.mode_shape(m, n, tap)
+                * pickup.map(|p| shape.mode_shape(m, n, p)).unwrap_or(1.0);
+            o.level_db - 20.0 * c.abs().max(COUPLING_FLOOR).log10()
+        })
+        .collect();
+    let x: Vec<f64> = levels
+        .iter()
+        .map(|o| o.frequency_hz.max(1e-9).ln())
+        .collect();
+    // Two partials per trend coefficient at least.
+    let degree = LEVEL_TREND_DEGREE.min((levels.len() / 2).saturating_sub(1));
+    trend_residual_ss(&x, &d, degree)
+}
+
+/// Σ residual² of a least-squares polynomial of `degree` in x (centred
+/// and scaled first, so that the normal equations stay well conditioned).
+fn trend_residual_ss(x: &[f64], y: &[f64], degree: usize) -> f64 {
+    let n = x.len();
+    if n == 0 {
+        return 0.0;
+    }
+    let mean = x.iter().sum::<f64>() / n as f64;
+    let spread = x.iter().map(|v| (v - mean).abs()).fold(0.0, f64::max);
+    let t: Vec<f64> = x
+        .iter()
+        .map(|v| {
+            if spread > 0.0 {
+                (v - mean) / spread
+            } else {
+                0.0
+            }
+        })
+        .collect();
+    let cols = degree + 1;
+    let a = nalgebra::DMatrix::from_fn(n, cols, |i, j| t[i].powi(j as i32));
+    let b = nalgebra::DVector::from_column_slice(y);
+    let coef = a
+        .clone()
+        .svd(true, true)
+        .solve(&b, 1e-12)
+        .unwrap_or_else(|_| nalgebra::DVector::zeros(cols));
+    (b - a * coef).norm_squared()
+}
+
+/// Compares the labelling of `levels` with its swap (n, m) through the
+/// expected amplitudes at the tap and pickup points. Both labellings
+/// predict the same frequencies, so everything that depends on frequency
+/// alone (tap spectrum, damping, microphone) is the same for both — a
+/// smooth trend in frequency fitted for each — and only the mode shapes
+/// at the two points differ. With Gaussian level errors of
+/// [`LEVEL_SCATTER_DB`], ln L = −SS/(2·s²) + const, so
 /// log₁₀ LR = (SS_swapped − SS_labelled)/(2·s²·ln 10).
 /// Positive values favour the labelling as given.
-pub fn axis_log10_lr(
-    levels: &[((u32, u32), f64)],
-    shape: &Shape,
-    tap: Point,
-    pickup: Option<Point>,
-) -> f64 {
-    let swapped: Vec<((u32, u32), f64)> = levels.iter().map(|&((m, n), l)| ((n, m), l)).collect();
+pub fn axis_log10_lr(levels: &[LevelObs], shape: &Shape, tap: Point, pickup: Option<Point>) -> f64 {
+    let swapped: Vec<LevelObs> = levels
+        .iter()
+        .map(|o| LevelObs {
+            mode: (o.mode.1, o.mode.0),
+            ..*o
+        })
+        .collect();
     let ss = level_misfit(levels, shape, tap, pickup);
     let ss_swapped = level_misfit(&swapped, shape, tap, pickup);
     (ss_swapped - ss) / (2.0 * LEVEL_SCATTER_DB.powi(2) * std::f64::consts::LN_10)
@@ -194,6 +246,18 @@ mod tests {
         assert!(r.anisotropy_percent.value.abs() < 1e-9);
     }
 
+    /// A partial of the 400 mm square at its ideal frequency (c = 100 m/s)
+    /// with coupling `c` and a level trend falling 12 dB per octave (as a
+    /// tap's force spectrum and damping make it) from `gain_db`.
+    fn obs(mode: (u32, u32), c: f64, gain_db: f64) -> LevelObs {
+        let f = 100.0 / (2.0 * 0.4) * ((mode.0 * mode.0 + mode.1 * mode.1) as f64).sqrt();
+        LevelObs {
+            mode,
+            frequency_hz: f,
+            level_db: gain_db + 20.0 * c.log10() - 40.0 * (f / 100.0).log10(),
+        }
+    }
+
     fn square() -> Shape {
         Shape::Rectangle {
             width: crate::units::Meters(0.4),
@@ -210,16 +274,19 @@ mod tests {
             u: 0.5,
             v: Some(0.31),
         };
-        let levels: Vec<((u32, u32), f64)> = [(1, 1), (1, 2), (3, 1), (3, 2), (1, 3), (1, 4)]
+        let levels: Vec<LevelObs> = [(1, 1), (1, 2), (3, 1), (3, 2), (1, 3), (1, 4)]
             .iter()
-            .map(|&(m, n)| {
-                let c = square().mode_shape(m, n, tap).abs();
-                ((m, n), 20.0 * c.log10() - 40.0)
-            })
+            .map(|&(m, n)| obs((m, n), square().mode_shape(m, n, tap).abs(), -40.0))
             .collect();
         let lr = axis_log10_lr(&levels, &square(), tap, None);
         assert!(lr > DECISIVE_LOG10_LR, "{lr}");
-        let swapped: Vec<_> = levels.iter().map(|&((m, n), l)| ((n, m), l)).collect();
+        let swapped: Vec<_> = levels
+            .iter()
+            .map(|o| LevelObs {
+                mode: (o.mode.1, o.mode.0),
+                ..*o
+            })
+            .collect();
         assert!((axis_log10_lr(&swapped, &square(), tap, None) + lr).abs() < 1e-9);
     }
 
@@ -230,7 +297,11 @@ mod tests {
             u: 0.3,
             v: Some(0.3),
         };
-        let levels = [((1, 2), -40.0), ((2, 1), -43.0), ((1, 3), -45.0)];
+        let levels = [
+            obs((1, 2), 1.0, -40.0),
+            obs((2, 1), 1.0, -43.0),
+            obs((1, 3), 1.0, -45.0),
+        ];
         assert!(axis_log10_lr(&levels, &square(), tap, None).abs() < 1e-9);
     }
 }

@@ -356,6 +356,70 @@ fn relabel(
     (current_lines, current)
 }
 
+/// Lines far enough up that the lowest partial may be any of the first
+/// few lines: g_max = g(ANCHOR_LINES-th line) · `f_ratio` (the highest
+/// partial over the lowest). The factors do not depend on the tap, so the
+/// cache serves here.
+fn matching_lines(panel: &Panel, f_ratio: f64) -> Vec<ModeLine> {
+    let g_probe = panel.shape.fundamental_factor() * 6.0;
+    let g_anchor = with_cached_lines(panel, g_probe, |all| {
+        let below = all.partition_point(|l| l.factor <= g_probe * (1.0 + 1e-12));
+        all[..below]
+            .get(matching::ANCHOR_LINES.min(below).max(1) - 1)
+            .map(|l| l.factor)
+    })
+    .unwrap_or(panel.shape.fundamental_factor());
+    cached_lines(panel, g_anchor * f_ratio * 1.05)
+}
+
+/// Largest tension ratio Tx/Ty (and smallest, its inverse) the biaxial
+/// search tries: ±47 % anisotropy, beyond any mesh stretched for use.
+pub const BIAXIAL_MAX_RATIO: f64 = 1.6;
+/// Step of the biaxial search in the tension ratio: pure-m and pure-n
+/// modes move by half the step against each other, about 17 cents, within
+/// the matching gate of the nearest grid ratio.
+pub const BIAXIAL_RATIO_STEP: f64 = 1.04;
+
+/// The biaxial labelling's start: with Tx/Ty = ρ the frequencies are
+/// those of an isotropic rectangle of width Lx/√ρ, since
+/// f² = (Ty/σ)·((√ρ·m/Lx)² + (n/Ly)²)/4, so the isotropic matcher runs on
+/// that rectangle's lines
+/// for every ρ of a geometric grid from 1/[`BIAXIAL_MAX_RATIO`] to
+/// [`BIAXIAL_MAX_RATIO`] (ρ = 1 included) and the best-scoring hypothesis
+/// is kept, with its lines. On a square, ρ and 1/ρ explain the same
+/// frequencies with swapped labels: the axis tie-break decides later.
+fn biaxial_search(
+    parts: &[crate::partials::Partial],
+    panel: &Panel,
+    lx: f64,
+    ly: f64,
+    f_ratio: f64,
+    band: (f64, f64),
+) -> (Vec<ModeLine>, Option<Matching>) {
+    let steps = (BIAXIAL_MAX_RATIO.ln() / BIAXIAL_RATIO_STEP.ln()).ceil() as i32;
+    let mut best: Option<(Vec<ModeLine>, Matching)> = None;
+    for k in -steps..=steps {
+        let rho = BIAXIAL_RATIO_STEP.powi(k);
+        let p = Panel {
+            shape: Shape::Rectangle {
+                width: crate::units::Meters(lx / rho.sqrt()),
+                height: crate::units::Meters(ly),
+            },
+            ..panel.clone()
+        };
+        let lines = matching_lines(&p, f_ratio);
+        if let Some(m) = matching::match_modes(parts, &lines, band) {
+            if best.as_ref().is_none_or(|(_, b)| m.score > b.score) {
+                best = Some((lines, m));
+            }
+        }
+    }
+    match best {
+        Some((l, m)) => (l, Some(m)),
+        None => (Vec::new(), None),
+    }
+}
+
 /// The biaxial predictor: f² = A·m² + B·n² from the two-term fit.
 fn biaxial_predictor(obs: &[Observation]) -> Option<Predictor> {
     let (p, _) = fit::fit_free_aspect(obs, 1.0)?.two_term?;
@@ -386,7 +450,10 @@ fn plate_predictor(obs: &[Observation], lx: f64, ly: f64) -> Option<Predictor> {
 /// The axis evidence for a biaxial labelling ([`crate::biaxial::axis_log10_lr`]):
 /// swapped when the levels favour the swap decisively, not determined when
 /// they cannot tell or the tap point is unknown.
-fn axis_tie_break(levels: &[((u32, u32), f64)], panel: &Panel) -> crate::biaxial::AxisEvidence {
+fn axis_tie_break(
+    levels: &[crate::biaxial::LevelObs],
+    panel: &Panel,
+) -> crate::biaxial::AxisEvidence {
     use crate::biaxial::{AxisEvidence, AxisVerdict, DECISIVE_LOG10_LR};
     let Some(tap) = panel.tap else {
         return AxisEvidence {
@@ -479,21 +546,10 @@ pub fn measure_with(
     let (f_lo, f_hi) = parts.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), p| {
         (lo.min(p.frequency_hz), hi.max(p.frequency_hz))
     });
-    // Lines far enough up that the lowest partial may be any of the first
-    // few lines: g_max = g(ANCHOR_LINES-th line) · f_hi/f_lo.
-    // (The factors do not depend on the tap, so the cache serves here.)
-    let g_probe = panel.shape.fundamental_factor() * 6.0;
-    let g_anchor = with_cached_lines(panel, g_probe, |all| {
-        let below = all.partition_point(|l| l.factor <= g_probe * (1.0 + 1e-12));
-        all[..below]
-            .get(matching::ANCHOR_LINES.min(below).max(1) - 1)
-            .map(|l| l.factor)
-    })
-    .unwrap_or(panel.shape.fundamental_factor());
     let lines = if parts.is_empty() {
         Vec::new()
     } else {
-        cached_lines(panel, g_anchor * (f_hi / f_lo) * 1.05)
+        matching_lines(panel, f_hi / f_lo)
     };
     let lines = match (opts.model, panel.areal_density) {
         (FitModel::AirLoaded, Some(s)) => crate::airload::loaded_lines(&lines, s.0),
@@ -503,13 +559,21 @@ pub fn measure_with(
         Some(cal) => cal.calibration.apply(&lines),
         None => (lines, Vec::new()),
     };
-    let matching = matching::match_modes(
-        parts,
-        &lines,
-        (opts.analysis.min_frequency_hz, f_hi.max(1.0)),
-    );
-    // Biaxial tension moves the pure-m and pure-n modes apart by more than
-    // the matching gate: relabel against the biaxial model itself.
+    let band = (opts.analysis.min_frequency_hz, f_hi.max(1.0));
+    // Biaxial tension: the labels come from the best of the isotropic
+    // hypotheses of a grid of tension ratios (each is an isotropic
+    // rectangle of another aspect), then relabelled against the biaxial
+    // model itself, since the ratio moves the pure-m and pure-n modes apart
+    // by more than the matching gate.
+    let (lines, matching) = match (opts.model, panel.shape) {
+        (FitModel::Biaxial, Shape::Rectangle { width, height }) if !parts.is_empty() => {
+            biaxial_search(parts, panel, width.0, height.0, f_hi / f_lo, band)
+        }
+        _ => {
+            let m = matching::match_modes(parts, &lines, band);
+            (lines, m)
+        }
+    };
     let (mut lines, mut matching) = match (opts.model, matching, panel.shape) {
         (FitModel::Biaxial, Some(m), _) => {
             let (l, mm) = relabel(parts, &lines, m, biaxial_predictor);
@@ -703,11 +767,15 @@ pub fn measure_with(
                 // Axis tie-break: the swap (m,n) → (n,m) with A ↔ B fits the
                 // frequencies equally; the levels at the tap and pickup
                 // points may tell the two apart.
-                let levels: Vec<((u32, u32), f64)> = fit_idx
+                let levels: Vec<crate::biaxial::LevelObs> = fit_idx
                     .iter()
                     .enumerate()
                     .filter(|(k, _)| !f.outliers.contains(k))
-                    .map(|(_, &i)| (obs[i].mode, parts[m.assignments[i].partial].level_db))
+                    .map(|(_, &i)| crate::biaxial::LevelObs {
+                        mode: obs[i].mode,
+                        frequency_hz: obs[i].frequency_hz,
+                        level_db: parts[m.assignments[i].partial].level_db,
+                    })
                     .collect();
                 let axis = axis_tie_break(&levels, panel);
                 if axis.swapped_from_matcher {
@@ -981,12 +1049,16 @@ mod tests {
         };
         let panel = Panel::from_spec(&spec).unwrap();
         let tap = panel.tap.unwrap();
-        let levels: Vec<((u32, u32), f64)> = [(1, 1), (1, 2), (3, 1), (3, 2), (1, 3)]
+        let levels: Vec<crate::biaxial::LevelObs> = [(1, 1), (1, 2), (3, 1), (3, 2), (1, 3)]
             .iter()
             .map(|&(m, n)| {
                 let c = panel.shape.mode_shape(m, n, tap).abs();
                 // Reported with the swapped labels.
-                ((n, m), 20.0 * c.log10() - 30.0)
+                crate::biaxial::LevelObs {
+                    mode: (n, m),
+                    frequency_hz: 150.0 * ((m * m + n * n) as f64).sqrt(),
+                    level_db: 20.0 * c.log10() - 30.0,
+                }
             })
             .collect();
         let ev = axis_tie_break(&levels, &panel);

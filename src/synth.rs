@@ -271,6 +271,30 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
                 continue;
             }
         }
+        // Biaxial tension on a rectangle: every mode of the line at its
+        // own frequency, f² = (Tx·(m/Lx)² + Ty·(n/Ly)²)/(4σ), with its own
+        // coupling (on a square the (m,n)/(n,m) pair of a line splits).
+        if let (Some(ty), Shape::Rectangle { width, height }, None) =
+            (cfg.tension_y, cfg.shape, cfg.bending_stiffness)
+        {
+            for &(m, n) in &line.labels {
+                let f = ((cfg.tension.0 * (m as f64 / width.0).powi(2)
+                    + ty.0 * (n as f64 / height.0).powi(2))
+                    / (4.0 * cfg.areal_density.0))
+                    .sqrt();
+                let coupling = cfg.shape.mode_shape(m, n, cfg.tap)
+                    * cfg
+                        .pickup
+                        .map(|p| cfg.shape.mode_shape(m, n, p))
+                        .unwrap_or(1.0);
+                let a = coupling * half_sine_spectrum(f, cfg.tap_duration_s);
+                let t60 = cfg.t60_s * (f1 / f).sqrt();
+                if a.abs() > 1e-6 {
+                    comps.push((f, a, 3.0 * std::f64::consts::LN_10 / t60));
+                }
+            }
+            continue;
+        }
         let f = match (cfg.tension_y, cfg.shape) {
             _ if cfg.bending_stiffness.is_some()
                 && matches!(cfg.shape, Shape::Rectangle { .. }) =>
@@ -287,16 +311,6 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
                     d / s,
                     crate::plate::k_squared(width.0, height.0, m, n),
                 )
-            }
-            // Biaxial: f² = (Tx·(m/Lx)² + Ty·(n/Ly)²)/(4σ) for the first
-            // mode of the line (an (m,n)/(n,m) pair of a square splits; only
-            // its first member is sounded here).
-            (Some(ty), Shape::Rectangle { width, height }) => {
-                let (m, n) = line.labels[0];
-                ((cfg.tension.0 * (m as f64 / width.0).powi(2)
-                    + ty.0 * (n as f64 / height.0).powi(2))
-                    / (4.0 * cfg.areal_density.0))
-                    .sqrt()
             }
             _ if cfg.air_loaded => {
                 line.factor * c * crate::airload::loading_factor(line.factor, cfg.areal_density.0)
