@@ -290,6 +290,7 @@ pub fn analyse_with(
             rec,
             &mut analysis,
             &all,
+            &[],
             crate::estimator::MAX_PENCIL_SAMPLES,
             planner,
         );
@@ -639,15 +640,25 @@ const DB_PER_NEPER: f64 = 20.0 / std::f64::consts::LN_10;
 /// members' mean, which is the unsplit mode's to first order in the
 /// perturbation that splits it). A band where the fit finds nothing near
 /// the peak keeps the FFT estimate.
+///
+/// `pairs` are partials the peak picker separated that belong to one
+/// degenerate line (a split pair): each pair is fitted in one band that
+/// holds both members, so that each member's fit models the other — the
+/// FFT peak of the weaker member is pulled by the stronger one's skirt by
+/// up to about a resolution bin, which a band around that peak alone
+/// would read as a pull on the fit and refuse. When the band holds two
+/// components, each nearer its own member's peak than the other's, the
+/// members take them.
 pub fn refine(
     rec: &Recording,
     analysis: &mut PartialAnalysis,
     which: &[usize],
+    pairs: &[(usize, usize)],
     pencil_samples: usize,
     planner: &mut RealFftPlanner<f64>,
 ) {
     use crate::estimator::{BandConfig, SpanAnalyser};
-    if which.is_empty() || analysis.partials.is_empty() {
+    if (which.is_empty() && pairs.is_empty()) || analysis.partials.is_empty() {
         return;
     }
     let sr = rec.sample_rate_hz;
@@ -664,6 +675,68 @@ pub fn refine(
         .chain(analysis.hum.iter().map(|h| h.partial.frequency_hz))
         .collect();
     peaks.sort_by(f64::total_cmp);
+    for &(a, b) in pairs {
+        let (Some(pa), Some(pb)) = (analysis.partials.get(a), analysis.partials.get(b)) else {
+            continue;
+        };
+        if a == b
+            || pa.method == FrequencyMethod::DampedFit
+            || pb.method == FrequencyMethod::DampedFit
+        {
+            continue;
+        }
+        let (fa, fb) = (pa.frequency_hz, pb.frequency_hz);
+        let (lo, hi) = (fa.min(fb), fa.max(fb));
+        // The band reaches a resolution bin beyond each member, and not
+        // past the way to any other peak.
+        let gap = peaks
+            .iter()
+            .filter(|&&f| f != fa && f != fb)
+            .map(|&f| (f - lo).abs().min((f - hi).abs()))
+            .fold(f64::INFINITY, f64::min);
+        let reach = (2.0 * resolution_hz).min(REFINE_NEIGHBOUR_FRACTION * gap);
+        let k = spec.bin_of(0.5 * (lo + hi));
+        let sigma2 =
+            spec.floor_power[k.min(spec.floor_power.len() - 1)] / spec.window_sq_sum.max(1e-300);
+        analyser.set_noise_variance(sigma2);
+        let fit = analyser.estimate(&BandConfig {
+            centre_hz: 0.5 * (lo + hi),
+            half_width_hz: 0.5 * (hi - lo) + reach,
+            max_order: 2,
+        });
+        let mut usable: Vec<_> = fit
+            .components
+            .iter()
+            .filter(|c| c.frequency_u_hz.is_finite() && c.decay_rate_per_s.is_finite())
+            .collect();
+        // Two components, in frequency order, each nearer its own member's
+        // FFT peak than the other's (the weaker member's peak can sit more
+        // than a bin off, pulled by the stronger one's skirt); anything
+        // else leaves both as they are.
+        usable.sort_by(|x, y| x.frequency_hz.total_cmp(&y.frequency_hz));
+        let members = if fa <= fb {
+            [(a, fa), (b, fb)]
+        } else {
+            [(b, fb), (a, fa)]
+        };
+        if usable.len() != 2
+            || members
+                .iter()
+                .zip(&usable)
+                .any(|(&(_, f0), c)| (c.frequency_hz - f0).abs() >= 0.5 * (hi - lo))
+        {
+            continue;
+        }
+        for (&(i, _), c) in members.iter().zip(&usable) {
+            let p = &mut analysis.partials[i];
+            p.frequency_hz = c.frequency_hz;
+            p.frequency_u_hz = Some(c.frequency_u_hz);
+            p.crlb_hz = Some(c.crlb_hz);
+            set_decay(p, c.decay_rate_per_s, c.decay_rate_u_per_s);
+            p.amplitude = Some(c.amplitude);
+            p.method = FrequencyMethod::DampedFit;
+        }
+    }
     for &i in which {
         let Some(p) = analysis.partials.get_mut(i) else {
             continue;

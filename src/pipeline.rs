@@ -620,7 +620,9 @@ pub fn measure_with(
             .collect();
         // The FFT peaks labelled the modes; the damped-sinusoid refinement
         // (about a millisecond a band) is spent on the isolated modes that
-        // enter the fit.
+        // enter the fit and on every FFT-resolved pair, whose two members
+        // are fitted together (the evenness needs each member's
+        // uncertainty).
         if opts.analysis.refine {
             let chosen: Vec<usize> = m
                 .assignments
@@ -628,12 +630,16 @@ pub fn measure_with(
                 .zip(&crowded)
                 .filter(|(_, &c)| !c)
                 .map(|(a, _)| a.partial)
-                .chain(partners.iter().map(|&(_, q)| q))
+                // A member the pair's joint fit could not place is fitted
+                // on its own (the joint fit comes first; members it placed
+                // are skipped).
+                .chain(partners.iter().flat_map(|&(p, q)| [p, q]))
                 .collect();
             partials::refine(
                 rec,
                 &mut analysis,
                 &chosen,
+                &partners,
                 partials::FIT_PENCIL_SAMPLES,
                 planner,
             );

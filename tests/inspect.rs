@@ -877,8 +877,8 @@ fn unevenness_limit_on_a_synthetic_head_with_and_without_skew() {
     assert!(rows[1]["reasons"].contains("unevenness |"), "{rows:?}");
     let md = std::fs::read_to_string(out.join("batch-report.md")).unwrap();
     assert!(md.contains("Limit 2 % (red line)"), "{md}");
-    // A head far more uneven (ε = 3.2 %) is never passed, whether its
-    // pair is evaluated (fail) or found but not evaluable (not measured).
+    // A head far more uneven (ε = 3.2 %) fails: its (1,1) pair's members
+    // are fitted together, so the pair is evaluated.
     let worse = make_head(d, "worse.wav", Some("3.2%"));
     let (_, rows) = inspect_rows(
         &example_spec("drumhead-14in.spec.toml"),
@@ -886,10 +886,9 @@ fn unevenness_limit_on_a_synthetic_head_with_and_without_skew() {
         &[worse],
         None,
     );
-    assert!(
-        rows[0]["decision"] == "fail" || rows[0]["decision"] == "not_measured",
-        "{rows:?}"
-    );
+    assert_eq!(rows[0]["decision"], "fail", "{rows:?}");
+    let s: f64 = rows[0]["unevenness_percent"].parse().unwrap();
+    assert!((s - 6.4).abs() < 0.5, "{s}");
     assert!(
         md.contains("1 measured recording(s) resolved no split pair"),
         "{md}"
