@@ -296,10 +296,15 @@ pub(crate) fn assign(partials: &[Partial], lines: &[ModeLine], c: f64) -> Vec<As
 /// logarithms of the partial frequencies and line factors (a residual in
 /// cents is then a difference, with no logarithm per pair).
 fn assign_logs(ln_f: &[f64], ln_g: &[f64], lines: &[ModeLine], ln_c: f64) -> Vec<Assignment> {
-    let mut cands: Vec<Assignment> = Vec::with_capacity(ln_f.len());
+    // (|residual|, partial, line, residual cents) of each partial's
+    // nearest line within the gate.
+    let mut cands: Vec<(f64, usize, usize, f64)> = Vec::with_capacity(ln_f.len());
+    // The partials come in rising frequency almost always, so each search
+    // for the first line at or above lg gallops on from the last one.
+    let mut k = 0usize;
     for (i, &lf) in ln_f.iter().enumerate() {
         let lg = lf - ln_c;
-        let k = ln_g.partition_point(|&x| x < lg);
+        k = first_at_or_above(ln_g, lg, k);
         let mut best: Option<(usize, f64)> = None;
         for (j, &x) in ln_g
             .iter()
@@ -319,43 +324,88 @@ fn assign_logs(ln_f: &[f64], ln_g: &[f64], lines: &[ModeLine], ln_c: f64) -> Vec
                 MATCH_GATE_CENTS
             };
             if r.abs() <= gate {
-                cands.push(Assignment {
-                    partial: i,
-                    line: j,
-                    residual_cents: r,
-                    alternatives: Vec::new(),
-                });
+                cands.push((r.abs(), i, j, r));
             }
         }
     }
-    // Unstable sorts (no scratch buffer) with the partial as tie-break:
-    // the same order as a stable sort of candidates made in partial order.
-    cands.sort_unstable_by(|a, b| {
-        a.residual_cents
-            .abs()
-            .total_cmp(&b.residual_cents.abs())
-            .then(a.partial.cmp(&b.partial))
-    });
-    // Lines taken so far and how often (a short list: at most one entry
-    // per partial, where a flag per line would clear thousands of lines
-    // for every hypothesis).
-    let mut used: Vec<(usize, usize)> = Vec::with_capacity(cands.len());
-    let mut out = Vec::with_capacity(cands.len());
-    for a in cands {
-        let cap = lines[a.line].degeneracy.max(1);
-        match used.iter_mut().find(|(l, _)| *l == a.line) {
-            Some((_, n)) if *n >= cap => continue,
-            Some((_, n)) => *n += 1,
-            None => used.push((a.line, 1)),
-        }
-        out.push(a);
+    // Each line takes at most its degeneracy of partials, the closest
+    // (ties to the lower partial). Candidates claim only their nearest
+    // line, so this is decided line by line; and for partials in rising
+    // frequency (as the analysis gives them) the nearest line rises too,
+    // so the claims on one line are consecutive and no sort is needed.
+    let sorted = ln_f.windows(2).all(|w| w[0] <= w[1]);
+    if !sorted {
+        cands.sort_unstable_by(|a, b| a.2.cmp(&b.2).then(a.1.cmp(&b.1)));
     }
-    out.sort_unstable_by(|a, b| {
-        ln_f[a.partial]
-            .total_cmp(&ln_f[b.partial])
-            .then(a.partial.cmp(&b.partial))
-    });
+    let mut out = Vec::with_capacity(cands.len());
+    let mut start = 0;
+    while start < cands.len() {
+        let line = cands[start].2;
+        let end = start + cands[start..].iter().take_while(|c| c.2 == line).count();
+        let cap = lines[line].degeneracy.max(1);
+        let mut keep: Vec<usize> = (start..end).collect();
+        if keep.len() > cap {
+            keep.sort_unstable_by(|&a, &b| {
+                cands[a]
+                    .0
+                    .total_cmp(&cands[b].0)
+                    .then(cands[a].1.cmp(&cands[b].1))
+            });
+            keep.truncate(cap);
+            keep.sort_unstable();
+        }
+        for i in keep {
+            let (_, partial, line, r) = cands[i];
+            out.push(Assignment {
+                partial,
+                line,
+                residual_cents: r,
+                alternatives: Vec::new(),
+            });
+        }
+        start = end;
+    }
+    if !sorted {
+        out.sort_unstable_by(|a, b| {
+            ln_f[a.partial]
+                .total_cmp(&ln_f[b.partial])
+                .then(a.partial.cmp(&b.partial))
+        });
+    }
     out
+}
+
+/// The first index k with `sorted[k] >= x` (`sorted.len()` if none), found
+/// by galloping from `hint` in either direction and bisecting the last
+/// stride: O(log distance) from the hint, and the same answer as
+/// `partition_point(|&v| v < x)` for any hint.
+fn first_at_or_above(sorted: &[f64], x: f64, hint: usize) -> usize {
+    let n = sorted.len();
+    let hint = hint.min(n);
+    let (mut lo, mut hi);
+    if hint < n && sorted[hint] < x {
+        // Answer above hint: gallop up.
+        lo = hint + 1;
+        let mut step = 1;
+        hi = lo;
+        while hi < n && sorted[hi] < x {
+            lo = hi + 1;
+            hi = (hi + step).min(n);
+            step *= 2;
+        }
+    } else {
+        // Answer at or below hint: gallop down.
+        hi = hint;
+        let mut step = 1;
+        lo = hint;
+        while lo > 0 && sorted[lo - 1] >= x {
+            hi = lo - 1;
+            lo = lo.saturating_sub(step);
+            step *= 2;
+        }
+    }
+    // Invariant: answer in lo..=hi.
+    lo + sorted[lo..hi].partition_point(|&v| v < x)
 }
 
 /// Fills in each assignment's alternatives: the other lines within the
@@ -474,6 +524,19 @@ fn score(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn galloping_search_equals_bisection_from_any_hint() {
+        let v: Vec<f64> = (0..200).map(|i| (i / 3) as f64 * 0.5).collect();
+        for xi in -3..140 {
+            let x = xi as f64 * 0.25;
+            let want = v.partition_point(|&a| a < x);
+            for hint in [0, 1, 7, 50, 99, 150, 199, 200, 500] {
+                assert_eq!(first_at_or_above(&v, x, hint), want, "x {x} hint {hint}");
+            }
+        }
+        assert_eq!(first_at_or_above(&[], 1.0, 3), 0);
+    }
     use crate::membrane::{Point, Shape};
     use crate::units::Meters;
 
