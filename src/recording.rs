@@ -133,26 +133,33 @@ pub fn read_wav(path: &Path, channel: ChannelChoice) -> Result<Recording> {
         }
     }
     let frames = interleaved.len() / channels;
-    let mut samples = Vec::with_capacity(frames);
     let mut clipped = 0usize;
-    for f in 0..frames {
-        let frame = &interleaved[f * channels..(f + 1) * channels];
-        let hits = &full_scale_hits[f * channels..(f + 1) * channels];
-        match channel {
-            ChannelChoice::MixDown => {
-                samples.push(frame.iter().sum::<f64>() / channels as f64);
-                if hits.iter().any(|&h| h) {
-                    clipped += 1;
+    let samples = if channels == 1 {
+        // One channel: the decoded samples as they are.
+        clipped = full_scale_hits.iter().filter(|&&h| h).count();
+        interleaved
+    } else {
+        let mut samples = Vec::with_capacity(frames);
+        for f in 0..frames {
+            let frame = &interleaved[f * channels..(f + 1) * channels];
+            let hits = &full_scale_hits[f * channels..(f + 1) * channels];
+            match channel {
+                ChannelChoice::MixDown => {
+                    samples.push(frame.iter().sum::<f64>() / channels as f64);
+                    if hits.iter().any(|&h| h) {
+                        clipped += 1;
+                    }
                 }
-            }
-            ChannelChoice::Index(i) => {
-                samples.push(frame[i]);
-                if hits[i] {
-                    clipped += 1;
+                ChannelChoice::Index(i) => {
+                    samples.push(frame[i]);
+                    if hits[i] {
+                        clipped += 1;
+                    }
                 }
             }
         }
-    }
+        samples
+    };
     let rate = header.sample_rate;
     if !(MIN_SAMPLE_RATE_HZ..=MAX_SAMPLE_RATE_HZ).contains(&rate) {
         return Err(bad(
