@@ -537,12 +537,36 @@ fn batch_line(e: &BatchEntry) -> String {
         _ => String::new(),
     };
     format!(
-        "{:<14} {:<30} {:>12}  {}",
+        "{:<14} {:<30} {:>12}  {}{}",
         e.decision.to_uppercase(),
         e.file,
         t,
-        margin
+        margin,
+        limit_notes(e)
     )
+}
+
+/// The anisotropy and unevenness judgements that did not pass, for the
+/// printed lines ("; anisotropy +9.10 % fails its limit"): without them a
+/// recording failed on its anisotropy would show only a comfortable
+/// tension margin.
+fn limit_notes(e: &BatchEntry) -> String {
+    let mut out = String::new();
+    let mut note = |what: &str, v: Option<f64>, d: &Option<String>| {
+        if let (Some(v), Some(d)) = (v, d.as_deref()) {
+            if d != "pass" {
+                let verb = if d == "fail" {
+                    "fails"
+                } else {
+                    "is indeterminate at"
+                };
+                out.push_str(&format!("; {what} {v:+.2} % {verb} its limit"));
+            }
+        }
+    };
+    note("anisotropy", e.anisotropy_percent, &e.anisotropy_decision);
+    note("unevenness", e.unevenness_percent, &e.unevenness_decision);
+    out
 }
 
 /// The one big line of the watch mode: the decision framed so that it
@@ -559,7 +583,10 @@ pub fn station_line(e: &BatchEntry) -> String {
         .unwrap_or_else(|| e.file.clone());
     match (e.tension_n_per_m, e.margin_n_per_m, &e.nearest_limit) {
         (Some(t), Some(m), Some(side)) if e.decision != "not_measured" => {
-            format!("{framed}  T = {t:.1} N/m  margin {m:+.1} N/m to the {side} limit  {file}")
+            format!(
+                "{framed}  T = {t:.1} N/m  margin {m:+.1} N/m to the {side} limit{}  {file}",
+                limit_notes(e)
+            )
         }
         _ => format!(
             "{framed}  {}  {file}",
@@ -1040,4 +1067,39 @@ pub fn watch(
         stderr: String::new(),
         exit,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn entry(decision: &str, aniso: Option<(&str, f64)>) -> BatchEntry {
+        BatchEntry {
+            file: "m.wav".into(),
+            decision: decision.into(),
+            tension_n_per_m: Some(1983.5),
+            margin_n_per_m: Some(183.5),
+            nearest_limit: Some("lower".into()),
+            anisotropy_percent: aniso.map(|a| a.1),
+            anisotropy_decision: aniso.map(|a| a.0.to_string()),
+            ..Default::default()
+        }
+    }
+
+    #[test]
+    fn lines_name_a_failed_anisotropy() {
+        let failed = entry("fail", Some(("fail", 9.0955)));
+        assert!(
+            batch_line(&failed).ends_with("; anisotropy +9.10 % fails its limit"),
+            "{}",
+            batch_line(&failed)
+        );
+        assert!(station_line(&failed).contains("; anisotropy +9.10 % fails its limit"));
+        let near = entry("indeterminate", Some(("indeterminate", -4.99)));
+        assert!(batch_line(&near).contains("anisotropy -4.99 % is indeterminate at its limit"));
+        // A passed judgement, or none, adds nothing.
+        for e in [entry("pass", Some(("pass", 1.0))), entry("pass", None)] {
+            assert!(!batch_line(&e).contains("anisotropy"), "{}", batch_line(&e));
+        }
+    }
 }
