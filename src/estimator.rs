@@ -1629,6 +1629,94 @@ mod tests {
         3.0 * LN_10 / t60
     }
 
+    /// Seeded Monte Carlo of the estimator on single damped sinusoids
+    /// (1.2 s span, T60 0.3 s, 20 dB SNR): the mean frequency error lies
+    /// within 3 standard errors of zero (unbiased), the mean T60 within
+    /// 5 % of the truth, and the reported uncertainty matches the scatter
+    /// (their ratio within 0.75–1.33, a wide band for 60 trials). Seed 303
+    /// gives a bias of −0.0008 Hz against an rms of 0.025 Hz, a mean T60
+    /// of 0.2997 s and a mean u of 0.0235 Hz.
+    #[test]
+    fn issue_3_unbiased_with_decay_within_5_percent() {
+        let fs = 48_000.0;
+        let n = 57_600;
+        let (a, t60) = (0.5, 0.3);
+        let sigma2 = a * a / 2.0 / 10f64.powf(20.0 / 10.0);
+        let mut rng = Rng::new(303);
+        let mut planner = RealFftPlanner::new();
+        let (mut errs, mut t60s, mut us) = (Vec::new(), Vec::new(), Vec::new());
+        for _ in 0..60 {
+            let f = 1000.0 + rng.uniform();
+            let ph = 2.0 * PI * rng.uniform();
+            let x = signal(fs, n, &[(f, a, alpha_of_t60(t60), ph)], sigma2, &mut rng);
+            let fit = SpanAnalyser::new_with(&x, fs, sigma2, &mut planner).estimate(&BandConfig {
+                centre_hz: 1000.5,
+                half_width_hz: 20.0,
+                max_order: 3,
+            });
+            assert_eq!(fit.components.len(), 1, "{fit:?}");
+            let c = &fit.components[0];
+            errs.push(c.frequency_hz - f);
+            t60s.push(c.t60_s);
+            us.push(c.frequency_u_hz);
+        }
+        let k = errs.len() as f64;
+        let mean = errs.iter().sum::<f64>() / k;
+        let rms = (errs.iter().map(|e| e * e).sum::<f64>() / k).sqrt();
+        assert!(
+            mean.abs() < 3.0 * rms / k.sqrt(),
+            "bias {mean} Hz, rms {rms} Hz"
+        );
+        let mean_t60 = t60s.iter().sum::<f64>() / k;
+        assert!((mean_t60 / t60 - 1.0).abs() < 0.05, "mean T60 {mean_t60} s");
+        let mean_u = us.iter().sum::<f64>() / k;
+        assert!(
+            (0.75..1.33).contains(&(rms / mean_u)),
+            "rms {rms}, mean u {mean_u}"
+        );
+    }
+
+    /// Two equal damped partials 0.3/τ apart (τ = 1/α, T60 1.2 s, so
+    /// 0.27 Hz against an FFT resolution of 0.83 Hz over the 1.2 s span) at
+    /// 40 dB SNR: resolved — exactly two components, each within a quarter
+    /// of the separation of its true frequency — in at least 18 of 20
+    /// seeded trials (seed 3030 resolves all 20; the accuracy example
+    /// measures about 94 % already at 0.25/τ).
+    #[test]
+    fn issue_3_resolves_a_pair_split_by_0_3_over_tau_at_40_db() {
+        let fs = 48_000.0;
+        let n = 57_600;
+        let a = 0.5;
+        let alpha = alpha_of_t60(1.2);
+        let df = 0.3 * alpha / (2.0 * PI);
+        let sigma2 = a * a / 2.0 / 10f64.powf(40.0 / 10.0);
+        let mut rng = Rng::new(3030);
+        let mut planner = RealFftPlanner::new();
+        let mut resolved = 0;
+        for _ in 0..20 {
+            let f1 = 1000.0 + rng.uniform();
+            let f2 = f1 + df;
+            let parts = [
+                (f1, a, alpha, 2.0 * PI * rng.uniform()),
+                (f2, a, alpha, 2.0 * PI * rng.uniform()),
+            ];
+            let x = signal(fs, n, &parts, sigma2, &mut rng);
+            let fit = SpanAnalyser::new_with(&x, fs, sigma2, &mut planner).estimate(&BandConfig {
+                centre_hz: 0.5 * (f1 + f2),
+                half_width_hz: 20.0,
+                max_order: 3,
+            });
+            let c = &fit.components;
+            if c.len() == 2
+                && (c[0].frequency_hz - f1).abs() < df / 4.0
+                && (c[1].frequency_hz - f2).abs() < df / 4.0
+            {
+                resolved += 1;
+            }
+        }
+        assert!(resolved >= 18, "{resolved} of 20 resolved");
+    }
+
     #[test]
     fn smooth_sizes() {
         assert_eq!(smooth_size_at_most(48_000), 48_000);
