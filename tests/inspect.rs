@@ -395,15 +395,17 @@ fn history_rows(db: &Path) -> i64 {
         .unwrap_or(0)
 }
 
-#[test]
-fn killed_mid_batch_keeps_every_completed_row() {
-    const BATCH: usize = 1500;
-    let dir = tempfile::tempdir().unwrap();
-    let d = dir.path();
+/// Recordings in the batches that are stopped part-way.
+const BIG_BATCH: usize = 1500;
+
+/// Starts `inspect` on [`BIG_BATCH`] links to one recording (guarded
+/// rule, history in `d/h.sqlite`, outputs in `d/out`) and returns once
+/// its first history row is in (bounded wait): (child, out, db).
+fn start_big_batch(d: &Path, stderr: Stdio) -> (Child, PathBuf, PathBuf) {
     let one = make(d, "one.wav", "2000N/m");
     let batch = d.join("batch");
     std::fs::create_dir(&batch).unwrap();
-    for i in 0..BATCH {
+    for i in 0..BIG_BATCH {
         let p = batch.join(format!("r{i:04}.wav"));
         if std::fs::hard_link(&one, &p).is_err() {
             std::fs::copy(&one, &p).unwrap();
@@ -419,10 +421,9 @@ fn killed_mid_batch_keeps_every_completed_row() {
         .arg(&db)
         .arg(&batch)
         .stdout(Stdio::null())
-        .stderr(Stdio::null())
+        .stderr(stderr)
         .spawn()
         .unwrap();
-    // Kill as soon as the first rows are in (bounded wait).
     let deadline = Instant::now() + PATIENCE;
     while history_rows(&db) == 0 {
         assert!(
@@ -432,6 +433,15 @@ fn killed_mid_batch_keeps_every_completed_row() {
         assert!(child.try_wait().unwrap().is_none(), "tonus ended early");
         std::thread::sleep(Duration::from_millis(10));
     }
+    (child, out, db)
+}
+
+#[test]
+fn killed_mid_batch_keeps_every_completed_row() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let (mut child, out, db) = start_big_batch(d, Stdio::null());
+    // Kill as soon as the first rows are in.
     child.kill().unwrap();
     let status = child.wait().unwrap();
     assert!(!status.success(), "killed, not finished");
@@ -447,7 +457,7 @@ fn killed_mid_batch_keeps_every_completed_row() {
     let rows = h.query(&tonus::history::Filter::default()).unwrap();
     assert!(!rows.is_empty());
     assert!(
-        rows.len() < BATCH,
+        rows.len() < BIG_BATCH,
         "the batch finished before the kill; make it larger"
     );
     for r in &rows {
@@ -1026,40 +1036,9 @@ fn ctrl_c_ends_a_watch_with_the_report() {
 
 #[test]
 fn ctrl_c_mid_batch_finishes_in_flight_and_writes_the_report() {
-    const BATCH: usize = 1500;
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    let one = make(d, "one.wav", "2000N/m");
-    let batch = d.join("batch");
-    std::fs::create_dir(&batch).unwrap();
-    for i in 0..BATCH {
-        let p = batch.join(format!("r{i:04}.wav"));
-        if std::fs::hard_link(&one, &p).is_err() {
-            std::fs::copy(&one, &p).unwrap();
-        }
-    }
-    let s = spec(d, "guarded");
-    let out = d.join("out");
-    let db = d.join("h.sqlite");
-    let mut child = Command::new(env!("CARGO_BIN_EXE_tonus"))
-        .args(["inspect", "--spec", s.to_str().unwrap(), "--out"])
-        .arg(&out)
-        .arg("--history")
-        .arg(&db)
-        .arg(&batch)
-        .stdout(Stdio::null())
-        .stderr(Stdio::piped())
-        .spawn()
-        .unwrap();
-    let deadline = Instant::now() + PATIENCE;
-    while history_rows(&db) == 0 {
-        assert!(
-            Instant::now() < deadline,
-            "no history row within {PATIENCE:?}"
-        );
-        assert!(child.try_wait().unwrap().is_none(), "tonus ended early");
-        std::thread::sleep(Duration::from_millis(10));
-    }
+    let (mut child, out, db) = start_big_batch(d, Stdio::piped());
     signal(&child, libc::SIGINT);
     let status = wait_bounded(&mut child, PATIENCE);
     let mut err = String::new();
@@ -1067,7 +1046,7 @@ fn ctrl_c_mid_batch_finishes_in_flight_and_writes_the_report() {
     assert_eq!(status.code(), Some(130), "{err}");
     let stored = history_rows(&db) as usize;
     assert!(
-        stored < BATCH,
+        stored < BIG_BATCH,
         "the batch finished before the signal; make it larger"
     );
     // Every decided recording is in the history, the CSV, the JSON Lines
@@ -1084,12 +1063,12 @@ fn ctrl_c_mid_batch_finishes_in_flight_and_writes_the_report() {
     let md = std::fs::read_to_string(out.join("batch-report.md")).unwrap();
     assert!(md.contains("interrupted by SIGINT"), "{md}");
     assert!(
-        md.contains(&format!("{stored} of {BATCH} recordings were decided")),
+        md.contains(&format!("{stored} of {BIG_BATCH} recordings were decided")),
         "{md}"
     );
     assert!(md.contains(&format!("| pass | {stored} |")), "{md}");
     assert!(
-        err.contains(&format!("{stored} of {BATCH} recording(s) decided")),
+        err.contains(&format!("{stored} of {BIG_BATCH} recording(s) decided")),
         "{err}"
     );
     for e in std::fs::read_dir(&out).unwrap() {
