@@ -114,6 +114,21 @@ pub fn match_modes(
     lines: &[ModeLine],
     band_hz: (f64, f64),
 ) -> Option<Matching> {
+    match_modes_with(partials, lines, band_hz, ANCHOR_PARTIALS, ANCHOR_LINES)
+}
+
+/// As [`match_modes`], with the wave-speed hypotheses seeded from
+/// `anchor_partials` strongest and as many lowest partials, each taken as
+/// one of the `anchor_lines` lowest lines: fewer anchors cost less and may
+/// miss the true hypothesis on a poor spectrum (a quick survey, to be
+/// followed by the full search where it points).
+pub fn match_modes_with(
+    partials: &[Partial],
+    lines: &[ModeLine],
+    band_hz: (f64, f64),
+    anchor_partials: usize,
+    anchor_lines: usize,
+) -> Option<Matching> {
     if partials.is_empty() || lines.is_empty() {
         return None;
     }
@@ -126,15 +141,15 @@ pub fn match_modes(
             .frequency_hz
             .total_cmp(&partials[b].frequency_hz)
     });
-    let mut anchors: Vec<usize> = by_level.iter().take(ANCHOR_PARTIALS).copied().collect();
-    for &i in by_freq.iter().take(ANCHOR_PARTIALS) {
+    let mut anchors: Vec<usize> = by_level.iter().take(anchor_partials).copied().collect();
+    for &i in by_freq.iter().take(anchor_partials) {
         if !anchors.contains(&i) {
             anchors.push(i);
         }
     }
     let mut seeds: Vec<f64> = Vec::new();
     for &i in &anchors {
-        for line in lines.iter().take(ANCHOR_LINES) {
+        for line in lines.iter().take(anchor_lines) {
             seeds.push(partials[i].frequency_hz / line.factor);
         }
     }

@@ -385,8 +385,9 @@ pub const BIAXIAL_RATIO_STEP: f64 = 1.04;
 /// f² = (Ty/σ)·((√ρ·m/Lx)² + (n/Ly)²)/4, so the isotropic matcher runs on
 /// that rectangle's lines
 /// for every ρ of a geometric grid from 1/[`BIAXIAL_MAX_RATIO`] to
-/// [`BIAXIAL_MAX_RATIO`] (ρ = 1 included) and the best-scoring hypothesis
-/// is kept, with its lines. On a square, ρ and 1/ρ explain the same
+/// [`BIAXIAL_MAX_RATIO`] (ρ = 1 included) — a quick survey with fewer
+/// seeds, then the full search at the best ρ and its neighbours — and the
+/// best-scoring hypothesis is kept, with its lines. On a square, ρ and 1/ρ explain the same
 /// frequencies with swapped labels: the axis tie-break decides later.
 fn biaxial_search(
     parts: &[crate::partials::Partial],
@@ -397,8 +398,7 @@ fn biaxial_search(
     band: (f64, f64),
 ) -> (Vec<ModeLine>, Option<Matching>) {
     let steps = (BIAXIAL_MAX_RATIO.ln() / BIAXIAL_RATIO_STEP.ln()).ceil() as i32;
-    let mut best: Option<(Vec<ModeLine>, Matching)> = None;
-    for k in -steps..=steps {
+    let lines_at = |k: i32| {
         let rho = BIAXIAL_RATIO_STEP.powi(k);
         let p = Panel {
             shape: Shape::Rectangle {
@@ -407,7 +407,24 @@ fn biaxial_search(
             },
             ..panel.clone()
         };
-        let lines = matching_lines(&p, f_ratio);
+        matching_lines(&p, f_ratio)
+    };
+    // A quick survey of every ratio with the fewer anchors of
+    // BIAXIAL_SURVEY_ANCHORS, then the full search at the best ratio and
+    // its two neighbours.
+    let (ap, al) = BIAXIAL_SURVEY_ANCHORS;
+    let surveyed = (-steps..=steps)
+        .filter_map(|k| {
+            let m = matching::match_modes_with(parts, &lines_at(k), band, ap, al)?;
+            Some((k, m.score))
+        })
+        .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.abs().cmp(&a.0.abs())));
+    let Some((k0, _)) = surveyed else {
+        return (Vec::new(), None);
+    };
+    let mut best: Option<(Vec<ModeLine>, Matching)> = None;
+    for k in (k0 - 1).max(-steps)..=(k0 + 1).min(steps) {
+        let lines = lines_at(k);
         if let Some(m) = matching::match_modes(parts, &lines, band) {
             if best.as_ref().is_none_or(|(_, b)| m.score > b.score) {
                 best = Some((lines, m));
@@ -419,6 +436,12 @@ fn biaxial_search(
         None => (Vec::new(), None),
     }
 }
+
+/// Anchors (partials, lines) of the biaxial search's quick survey of the
+/// ratio grid ([`matching::match_modes_with`]): the three strongest and
+/// three lowest partials as any of the six lowest lines, a quarter of the
+/// full search's seeds.
+pub const BIAXIAL_SURVEY_ANCHORS: (usize, usize) = (3, 6);
 
 /// The biaxial predictor: f² = A·m² + B·n² from the two-term fit.
 fn biaxial_predictor(obs: &[Observation]) -> Option<Predictor> {
