@@ -1015,12 +1015,27 @@ pub fn measure_with(
             warnings.push(Warning::LowSnr { median_snr_db: snr });
         }
     }
+    // The strongest partials the labelling leaves unexplained: (frequency,
+    // whether it is the very strongest).
+    let strong_unexplained: Vec<(f64, bool)> = {
+        let parts = &analysis.partials;
+        let mut by_level: Vec<usize> = (0..parts.len()).collect();
+        by_level.sort_by(|&a, &b| parts[b].level_db.total_cmp(&parts[a].level_db));
+        by_level
+            .iter()
+            .take(quality::STRONG_PARTIALS)
+            .enumerate()
+            .filter(|(_, i)| unmatched.contains(i))
+            .map(|(rank, &i)| (parts[i].frequency_hz, rank == 0))
+            .collect()
+    };
     let q = quality::grade(
         fit_result.as_ref(),
         matching.as_ref(),
         &modes,
         &warnings,
         rec.clipped_fraction,
+        &strong_unexplained,
     );
     let not_calibrated_rows: Vec<String> = modes
         .iter()

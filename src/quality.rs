@@ -57,13 +57,23 @@ pub struct Quality {
     pub reasons: Vec<String>,
 }
 
-/// Grades a fit.
+/// The strongest partials (by level) that the labelling is expected to
+/// explain ([`grade`]).
+pub const STRONG_PARTIALS: usize = 5;
+
+/// Grades a fit. `strong_unexplained` lists the partials among the
+/// [`STRONG_PARTIALS`] strongest that no mode explains (frequency Hz,
+/// whether it is the very strongest): a tap sounds its membrane's modes
+/// loudest, so the strongest partial unexplained, or two of the strongest
+/// five, say the model or its labelling is wrong (doubtful); one of them
+/// may be a rattle or a stand resonance (fair).
 pub fn grade(
     fit: Option<&FitResult>,
     matching: Option<&Matching>,
     modes: &[ModeRow],
     warnings: &[Warning],
     clipped_fraction: f64,
+    strong_unexplained: &[(f64, bool)],
 ) -> Quality {
     let mut g = Grade::Sound;
     let mut reasons = Vec::new();
@@ -147,6 +157,32 @@ pub fn grade(
             ),
             Warning::NoOnset => worse(Grade::Fair, "no tap onset found".into(), &mut g),
             _ => {}
+        }
+    }
+    if !strong_unexplained.is_empty() {
+        let list = strong_unexplained
+            .iter()
+            .map(|(f, _)| format!("{f:.1} Hz"))
+            .collect::<Vec<_>>()
+            .join(", ");
+        let strongest = strong_unexplained.iter().any(|&(_, top)| top);
+        if strongest || strong_unexplained.len() >= 2 {
+            worse(
+                Grade::Doubtful,
+                format!(
+                    "{} of the {STRONG_PARTIALS} strongest partials ({list}){} {} no mode: the model or the labelling is likely wrong",
+                    strong_unexplained.len(),
+                    if strongest { ", the strongest among them," } else { "" },
+                    if strong_unexplained.len() == 1 { "matches" } else { "match" }
+                ),
+                &mut g,
+            );
+        } else {
+            worse(
+                Grade::Fair,
+                format!("a strong partial at {list} matches no mode (a rattle, a stand resonance, or a mode the model lacks)"),
+                &mut g,
+            );
         }
     }
     let outliers = modes.iter().filter(|m| m.outlier).count();
