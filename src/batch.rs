@@ -63,8 +63,9 @@
 //! SHA-256 of the specification's calibration file, empty without one.
 
 use crate::commands::Outcome;
-use crate::decision::Decision;
+use crate::decision::{Decision, DecisionInput};
 use crate::error::{Result, TonusError};
+use crate::fit::Estimate;
 use crate::history::{History, RecordingContext, Row, UtcTime};
 use crate::pipeline;
 use crate::recording::{self, ChannelChoice};
@@ -255,35 +256,36 @@ pub fn decision_is_settled(spec: &Spec, m: &pipeline::Measurement) -> bool {
     let (Some(t), Some(fit_t)) = (input.tension, m.tension) else {
         return false;
     };
-    let same = |inp: &crate::decision::DecisionInput| {
+    let same = |inp: &DecisionInput| {
         crate::decision::decide(inp, &spec.limits, &spec.rule)
             .decision
             .name()
             == base.name()
     };
-    let dt = NEAR_LIMIT_FIT_U * fit_t.standard_uncertainty;
-    let tension_ok = [-dt, dt].iter().all(|&d| {
-        let mut inp = input.clone();
-        inp.tension = Some(crate::fit::Estimate {
-            value: t.value + d,
-            ..t
-        });
-        same(&inp)
-    });
-    let anisotropy_ok = match input.anisotropy_percent {
-        Some(a) => {
-            let da = NEAR_LIMIT_FIT_U * a.standard_uncertainty;
-            [-da, da].iter().all(|&d| {
-                let mut inp = input.clone();
-                inp.anisotropy_percent = Some(crate::fit::Estimate {
-                    value: a.value + d,
-                    ..a
-                });
-                same(&inp)
-            })
-        }
-        None => true,
+    // The decision with one input moved by ±step.
+    let holds = |shift: &dyn Fn(&mut DecisionInput, f64), step: f64| {
+        [-step, step].iter().all(|&d| {
+            let mut inp = input.clone();
+            shift(&mut inp, d);
+            same(&inp)
+        })
     };
+    let moved = |e: Estimate, d: f64| {
+        Some(Estimate {
+            value: e.value + d,
+            ..e
+        })
+    };
+    let tension_ok = holds(
+        &|inp, d| inp.tension = moved(t, d),
+        NEAR_LIMIT_FIT_U * fit_t.standard_uncertainty,
+    );
+    let anisotropy_ok = input.anisotropy_percent.is_none_or(|a| {
+        holds(
+            &|inp, d| inp.anisotropy_percent = moved(a, d),
+            NEAR_LIMIT_FIT_U * a.standard_uncertainty,
+        )
+    });
     tension_ok && anisotropy_ok
 }
 

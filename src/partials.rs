@@ -695,10 +695,7 @@ pub fn refine(
             .map(|&f| (f - lo).abs().min((f - hi).abs()))
             .fold(f64::INFINITY, f64::min);
         let reach = (2.0 * resolution_hz).min(REFINE_NEIGHBOUR_FRACTION * gap);
-        let k = spec.bin_of(0.5 * (lo + hi));
-        let sigma2 =
-            spec.floor_power[k.min(spec.floor_power.len() - 1)] / spec.window_sq_sum.max(1e-300);
-        analyser.set_noise_variance(sigma2);
+        analyser.set_noise_variance(noise_variance_at(spec, 0.5 * (lo + hi)));
         let fit = analyser.estimate(&BandConfig {
             centre_hz: 0.5 * (lo + hi),
             half_width_hz: 0.5 * (hi - lo) + reach,
@@ -728,13 +725,7 @@ pub fn refine(
             continue;
         }
         for (&(i, _), c) in members.iter().zip(&usable) {
-            let p = &mut analysis.partials[i];
-            p.frequency_hz = c.frequency_hz;
-            p.frequency_u_hz = Some(c.frequency_u_hz);
-            p.crlb_hz = Some(c.crlb_hz);
-            set_decay(p, c.decay_rate_per_s, c.decay_rate_u_per_s);
-            p.amplitude = Some(c.amplitude);
-            p.method = FrequencyMethod::DampedFit;
+            take_component(&mut analysis.partials[i], c);
         }
     }
     for &i in which {
@@ -760,12 +751,7 @@ pub fn refine(
             .max(4.0 * line_hwhm)
             .min(REFINE_NEIGHBOUR_FRACTION * gap)
             .min(REFINE_HALF_WIDTH_HZ);
-        // The noise variance per sample at the peak, from the floor (which
-        // is E|X_k|² = σ²·Σw² for white noise of variance σ²).
-        let k = spec.bin_of(f0);
-        let sigma2 =
-            spec.floor_power[k.min(spec.floor_power.len() - 1)] / spec.window_sq_sum.max(1e-300);
-        analyser.set_noise_variance(sigma2);
+        analyser.set_noise_variance(noise_variance_at(spec, f0));
         let fit = analyser.estimate(&BandConfig {
             centre_hz: f0,
             half_width_hz: half_width,
@@ -815,14 +801,7 @@ fn apply_fit(
         level_db: 20.0 * c.amplitude.max(1e-300).log10(),
     };
     match near.as_slice() {
-        [c] => {
-            p.frequency_hz = c.frequency_hz;
-            p.frequency_u_hz = Some(c.frequency_u_hz);
-            p.crlb_hz = Some(c.crlb_hz);
-            set_decay(p, c.decay_rate_per_s, c.decay_rate_u_per_s);
-            p.amplitude = Some(c.amplitude);
-            p.method = FrequencyMethod::DampedFit;
-        }
+        [c] => take_component(p, c),
         [a, b] => {
             set_pair(p, member(a), member(b));
             // The pair's decay: the stronger member's.
@@ -833,6 +812,24 @@ fn apply_fit(
         }
         _ => {}
     }
+}
+
+/// The noise variance per sample at `f_hz`, from the spectrum's floor
+/// (which is E|X_k|² = σ²·Σw² for white noise of variance σ²).
+fn noise_variance_at(spec: &Spectrum, f_hz: f64) -> f64 {
+    let k = spec.bin_of(f_hz).min(spec.floor_power.len() - 1);
+    spec.floor_power[k] / spec.window_sq_sum.max(1e-300)
+}
+
+/// Makes `p` the single damped component `c`: its frequency with
+/// uncertainty and bound, decay, amplitude, method.
+fn take_component(p: &mut Partial, c: &crate::estimator::DampedComponent) {
+    p.frequency_hz = c.frequency_hz;
+    p.frequency_u_hz = Some(c.frequency_u_hz);
+    p.crlb_hz = Some(c.crlb_hz);
+    set_decay(p, c.decay_rate_per_s, c.decay_rate_u_per_s);
+    p.amplitude = Some(c.amplitude);
+    p.method = FrequencyMethod::DampedFit;
 }
 
 /// Joins two partials that the peak picker separated into one split pair

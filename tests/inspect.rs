@@ -272,25 +272,18 @@ fn wait_for_line(
     }
 }
 
-#[test]
-fn watch_decides_a_recording_dropped_into_the_folder() {
-    let dir = tempfile::tempdir().unwrap();
-    let d = dir.path();
-    let inbox = d.join("inbox");
-    std::fs::create_dir(&inbox).unwrap();
-    // Already there when the watch starts: left alone (it would fail).
-    make(&inbox, "old.wav", "1500N/m");
-    let s = spec(d, "guarded");
-    let out = d.join("out");
-    let db = d.join("h.sqlite");
+/// Lines a child printed, tagged "out" or "err".
+type Lines = mpsc::Receiver<(&'static str, String)>;
+
+/// Starts `inspect --watch inbox` with `spec`, a 170 s timeout, a 50 ms
+/// poll and `extra` flags, and returns once it says it is watching
+/// (bounded wait): (child, its lines, the lines seen so far).
+fn start_watch(spec: &Path, inbox: &Path, extra: &[&str]) -> (Child, Lines, Vec<String>) {
     let mut child = Command::new(env!("CARGO_BIN_EXE_tonus"))
-        .args(["inspect", "--spec", s.to_str().unwrap(), "--watch"])
-        .arg(&inbox)
-        .args(["--watch-limit", "1", "--watch-timeout", "170s"])
-        .args(["--watch-interval", "50ms", "--station", "bench-3", "--out"])
-        .arg(&out)
-        .arg("--history")
-        .arg(&db)
+        .args(["inspect", "--spec", spec.to_str().unwrap(), "--watch"])
+        .arg(inbox)
+        .args(["--watch-timeout", "170s", "--watch-interval", "50ms"])
+        .args(extra)
         .stdout(Stdio::piped())
         .stderr(Stdio::piped())
         .spawn()
@@ -305,6 +298,34 @@ fn watch_decides_a_recording_dropped_into_the_folder() {
         |l| l.starts_with("watching"),
         PATIENCE,
         &mut seen,
+    );
+    (child, rx, seen)
+}
+
+#[test]
+fn watch_decides_a_recording_dropped_into_the_folder() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let inbox = d.join("inbox");
+    std::fs::create_dir(&inbox).unwrap();
+    // Already there when the watch starts: left alone (it would fail).
+    make(&inbox, "old.wav", "1500N/m");
+    let s = spec(d, "guarded");
+    let out = d.join("out");
+    let db = d.join("h.sqlite");
+    let (mut child, rx, mut seen) = start_watch(
+        &s,
+        &inbox,
+        &[
+            "--watch-limit",
+            "1",
+            "--station",
+            "bench-3",
+            "--out",
+            out.to_str().unwrap(),
+            "--history",
+            db.to_str().unwrap(),
+        ],
     );
     // `tonus synth` writes under a temporary name and renames: the file
     // lands whole, as a recorder following the documented convention would.
@@ -984,27 +1005,10 @@ fn ctrl_c_ends_a_watch_with_the_report() {
     let s = spec(d, "guarded");
     let out = d.join("out");
     // No limit: only the signal (or, if it is lost, the timeout) ends it.
-    let mut child = Command::new(env!("CARGO_BIN_EXE_tonus"))
-        .args(["inspect", "--spec", s.to_str().unwrap(), "--watch"])
-        .arg(&inbox)
-        .args(["--watch-timeout", "170s", "--watch-interval", "50ms"])
-        .arg("--no-history")
-        .arg("--out")
-        .arg(&out)
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .unwrap();
-    let (tx, rx) = mpsc::channel();
-    forward(child.stdout.take().unwrap(), "out", tx.clone());
-    forward(child.stderr.take().unwrap(), "err", tx);
-    let mut seen = Vec::new();
-    wait_for_line(
-        &rx,
-        "err",
-        |l| l.starts_with("watching"),
-        PATIENCE,
-        &mut seen,
+    let (mut child, rx, mut seen) = start_watch(
+        &s,
+        &inbox,
+        &["--no-history", "--out", out.to_str().unwrap()],
     );
     make(&inbox, "new.wav", "2000N/m");
     wait_for_line(&rx, "out", |l| l.contains("new.wav"), PATIENCE, &mut seen);
