@@ -329,8 +329,8 @@ pub struct StageTiming {
 /// given.
 ///
 /// # Errors
-/// A path that does not exist or a folder that cannot be listed, and an
-/// input list that holds no recording at all.
+/// A path that does not exist, a folder that cannot be listed or holds no
+/// `.wav`, and an input list that holds no recording at all.
 pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
     let mut out = Vec::new();
     for p in inputs {
@@ -343,6 +343,12 @@ pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
                 .filter_map(|e| e.ok().map(|e| e.path()))
                 .filter(|x| is_wav_name(x))
                 .collect();
+            if v.is_empty() {
+                return Err(TonusError::Io {
+                    path: p.clone(),
+                    reason: "a folder with no .wav recording in it; give recordings or folders that hold them".into(),
+                });
+            }
             v.sort();
             out.extend(v);
         } else {

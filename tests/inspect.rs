@@ -1080,3 +1080,32 @@ fn ctrl_c_mid_batch_finishes_in_flight_and_writes_the_report() {
         assert!(!name.contains(".part"), "{name}");
     }
 }
+
+/// A folder given with no recording in it is a usage error even beside
+/// good recordings: it would otherwise vanish from the batch, and a run
+/// with a mistyped folder could exit 0. Nothing is written.
+#[test]
+fn an_empty_folder_among_the_inputs_is_an_error() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let good = make(d, "good.wav", "2000N/m");
+    let empty = d.join("line-3.wav.d");
+    std::fs::create_dir(&empty).unwrap();
+    let s = spec(d, "simple");
+    let out = d.join("out");
+    let o = tonus(&[
+        "inspect",
+        "--spec",
+        s.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--no-history",
+        good.to_str().unwrap(),
+        empty.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("no .wav recording"), "{err}");
+    assert_eq!(err.trim().lines().count(), 1, "{err}");
+    assert!(!out.exists());
+}
