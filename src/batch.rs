@@ -472,6 +472,7 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
         let row = Row::from_decision(&ctx, spec, &m, &verdict, record.to_string());
         let input = spec.decision_input(&m);
         let entry = BatchEntry {
+            refined,
             file: file.display().to_string(),
             decision: verdict.decision.name().to_string(),
             tension_n_per_m: input.tension.map(|t| t.value),

@@ -617,6 +617,9 @@ fn refinement_near_limits_issue5() {
     assert_eq!(methods(&default), ["fft_peaks", "refined"]);
     assert_eq!(methods(&always), ["refined", "refined"]);
     assert_eq!(methods(&never), ["fft_peaks", "fft_peaks"]);
+    // The batch report says how many were refined.
+    let md = std::fs::read_to_string(d.join("out-default").join("batch-report.md")).unwrap();
+    assert!(md.contains("1 of 2 measured recordings refined"), "{md}");
     // The settled recording's decision is the one refining gives.
     assert_eq!(default[0].0, "pass");
     for (a, b) in default.iter().zip(&always) {

@@ -88,6 +88,9 @@ pub struct BatchEntry {
     pub grade: Option<String>,
     /// Why it was not measured, or the error.
     pub reason: Option<String>,
+    /// The partial frequencies came from the damped-sinusoid refinement
+    /// (false: FFT peaks only, or not measured).
+    pub refined: bool,
 }
 
 impl BatchEntry {
@@ -1105,6 +1108,16 @@ fn sections(s: &BatchSummary, pics: &Pictures) -> Vec<(String, String)> {
             .as_ref()
             .map(|x| format!(", operator {x}"))
             .unwrap_or_default()
+    );
+    let measured = s.entries.iter().filter(|e| e.measured()).count();
+    let refined = s
+        .entries
+        .iter()
+        .filter(|e| e.measured() && e.refined)
+        .count();
+    let _ = writeln!(
+        b,
+        "Partial frequencies: {refined} of {measured} measured recordings refined by the damped-sinusoid fit, the others from the FFT peaks (`frequency_method` in `inspect.csv`).\n"
     );
     b.push_str("| decision | recordings |\n|---|---:|\n");
     for (d, n) in tally(s) {
