@@ -782,11 +782,18 @@ fn draw_decay_panel(area: &Area<'_>, plot: &SpectrumPlot) -> Result<(), String> 
             .pos(Pos::new(HPos::Left, VPos::Center));
         let mut used = Occupied::default();
         for &(f, d, a, b) in &pairs {
-            let (x, y) = chart.backend_coord(&(f, (a * b).sqrt().clamp(lo, hi)));
+            let at = (f, (a * b).sqrt().clamp(lo, hi));
+            let (x, y) = chart.backend_coord(&at);
             let text = format!("pair, {} Hz apart", crate::units::sig(d, 2));
             let w = 7 * text.len() as i32;
             if used.claim((x + 6, y - 7, x + 6 + w, y + 7)) {
-                area.draw(&Text::new(text, (x + 6, y), style.clone()))
+                // Anchored at the pair in chart coordinates (the backend
+                // pixel is not the panel's own: drawn on the panel it
+                // landed below it), 6 px to the right.
+                chart
+                    .draw_series(std::iter::once(
+                        EmptyElement::at(at) + Text::new(text, (6, 0), style.clone()),
+                    ))
                     .map_err(draw_err)?;
             }
         }
