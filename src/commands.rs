@@ -96,22 +96,7 @@ pub fn fit(
         picture,
     } = output.clone();
     let out = out.as_deref();
-    let rec = recording::read_wav(path, channel)?;
-    let mut m = pipeline::measure(&rec, panel, opts)?;
-    if !m.analysis.tap.further_taps_s.is_empty() {
-        // Several taps: fit each, combine the good ones.
-        let sr = rec.sample_rate_hz;
-        let mut onsets = vec![m.analysis.tap.onset_sample];
-        onsets.extend(
-            m.analysis
-                .tap
-                .further_taps_s
-                .iter()
-                .map(|t| (t * sr).round() as usize),
-        );
-        let (_, series) = crate::taps::measure_taps(&rec, &onsets, panel, opts)?;
-        m.taps = Some(series);
-    }
+    let m = measure_file(path, channel, panel, opts)?;
     let mut stdout = if as_json {
         format!(
             "{}\n",
@@ -139,6 +124,38 @@ pub fn fit(
         stderr: String::new(),
         exit: exit_for(m.quality.grade),
     })
+}
+
+/// What `tonus fit` measures on one recording file, before any output:
+/// read, measure, and with several taps, fit each and combine them. The
+/// corpus scorecard ([`crate::scorecard`]) calls this too, so both run
+/// the same code path.
+///
+/// # Errors
+/// Unreadable recording, impossible model request, unidentifiable fit.
+pub fn measure_file(
+    path: &Path,
+    channel: ChannelChoice,
+    panel: &Panel,
+    opts: &FitOptions,
+) -> Result<Measurement> {
+    let rec = recording::read_wav(path, channel)?;
+    let mut m = pipeline::measure(&rec, panel, opts)?;
+    if !m.analysis.tap.further_taps_s.is_empty() {
+        // Several taps: fit each, combine the good ones.
+        let sr = rec.sample_rate_hz;
+        let mut onsets = vec![m.analysis.tap.onset_sample];
+        onsets.extend(
+            m.analysis
+                .tap
+                .further_taps_s
+                .iter()
+                .map(|t| (t * sr).round() as usize),
+        );
+        let (_, series) = crate::taps::measure_taps(&rec, &onsets, panel, opts)?;
+        m.taps = Some(series);
+    }
+    Ok(m)
 }
 
 /// `tonus calibrate`: fits each reference recording (labelled with the

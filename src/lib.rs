@@ -31,6 +31,7 @@ pub mod plate;
 pub mod quality;
 pub mod recording;
 pub mod report;
+pub mod scorecard;
 pub mod spec;
 pub mod spectrum;
 pub mod stats;
