@@ -105,7 +105,6 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
             })
             .collect()
     };
-    let energy_db = frame_db(&diff, frame);
     // The decay envelope uses the signal itself over 20 ms, a whole period
     // of 50 Hz hum, so that hum reads as a steady background.
     let envelope_db = frame_db(samples, 5 * frame);
@@ -119,31 +118,24 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
     };
     // The quietest tenth of the file is taken as background: the pre-roll
     // and the end of the decay.
-    let (background_onset_db, _) = tenth(&energy_db);
     let (background_db, peak_db) = tenth(&envelope_db);
-
     let lookback = ((0.02 * sample_rate_hz) as usize / hop).max(2);
-    let mut onset_frame = None;
-    for j in 0..n_frames {
-        let lo = j.saturating_sub(lookback);
-        let recent_min = if j == 0 {
-            background_onset_db
-        } else {
-            energy_db[lo..j]
-                .iter()
-                .copied()
-                .fold(f64::INFINITY, f64::min)
-        };
-        let rise = energy_db[j] - recent_min.min(energy_db[j]);
-        if energy_db[j] > background_onset_db + ONSET_ABOVE_FLOOR_DB
-            && (rise > ONSET_RISE_DB
-                || j == 0 && energy_db[j] > background_onset_db + ONSET_RISE_DB)
-        {
-            onset_frame = Some(j);
-            break;
+    // The first difference finds the onset under hum. A soft tap (a felt
+    // mallet, a 2 ms pulse) has little energy high up, where the
+    // difference lifts broadband noise: when the difference shows no
+    // onset, the signal's own frame energy is searched the same way.
+    let diff_energy = frame_db(&diff, frame);
+    let mut found = first_onset(&diff_energy, tenth(&diff_energy).0, lookback).map(|j| (j, true));
+    let mut energy_db = diff_energy;
+    if found.is_none() {
+        let plain = frame_db(samples, frame);
+        found = first_onset(&plain, tenth(&plain).0, lookback).map(|j| (j, false));
+        if found.is_some() {
+            energy_db = plain;
         }
     }
-    let Some(of) = onset_frame else {
+    let (background_onset_db, _) = tenth(&energy_db);
+    let Some((of, on_diff)) = found else {
         // A steady sound (or noise): analyse everything, capped.
         let end = n.min((MAX_SPAN_S * sample_rate_hz) as usize);
         return TapSpan {
@@ -157,7 +149,8 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
             onset_found: false,
         };
     };
-    let onset_sample = refine_onset(&diff, of * hop, frame);
+    let onset_signal: &[f64] = if on_diff { &diff } else { samples };
+    let onset_sample = refine_onset(onset_signal, of * hop, frame);
 
     // Further taps: a frame that tops the envelope of the preceding
     // look-back window by RETAP_EXCESS_DB.
@@ -172,7 +165,7 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
         if energy_db[j] > prev_max + RETAP_EXCESS_DB
             && energy_db[j] > background_onset_db + ONSET_ABOVE_FLOOR_DB
         {
-            further.push(refine_onset(&diff, j * hop, frame));
+            further.push(refine_onset(onset_signal, j * hop, frame));
             j += retap_back;
         } else {
             j += 1;
@@ -223,6 +216,25 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
         further_taps_s: further.iter().map(|&s| s as f64 / sample_rate_hz).collect(),
         onset_found: true,
     }
+}
+
+/// The first frame whose energy (dB) rises [`ONSET_RISE_DB`] over the
+/// quietest of the `lookback` frames before it and stands
+/// [`ONSET_ABOVE_FLOOR_DB`] above the background.
+fn first_onset(energy_db: &[f64], background_db: f64, lookback: usize) -> Option<usize> {
+    (0..energy_db.len()).find(|&j| {
+        let recent_min = if j == 0 {
+            background_db
+        } else {
+            energy_db[j.saturating_sub(lookback)..j]
+                .iter()
+                .copied()
+                .fold(f64::INFINITY, f64::min)
+        };
+        let rise = energy_db[j] - recent_min.min(energy_db[j]);
+        energy_db[j] > background_db + ONSET_ABOVE_FLOOR_DB
+            && (rise > ONSET_RISE_DB || j == 0 && energy_db[j] > background_db + ONSET_RISE_DB)
+    })
 }
 
 /// Moves a frame-accurate onset to the first sample that reaches a tenth
