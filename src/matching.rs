@@ -129,6 +129,23 @@ pub fn match_modes_with(
     anchor_partials: usize,
     anchor_lines: usize,
 ) -> Option<Matching> {
+    match_modes_in(partials, lines, band_hz, (anchor_partials, anchor_lines), None)
+}
+
+/// As [`match_modes_with`] (anchors as (partials, lines)); with
+/// `ensemble` (the couplings of the first lines at many possible tap and
+/// pickup points, [`crate::membrane::Shape::excitation_ensemble`]) the
+/// low lines' presence is scored by [`pattern_log_likelihood`], averaged
+/// over where the tap may have been, instead of by each line's own
+/// coupling: the tap point is then not needed.
+pub fn match_modes_in(
+    partials: &[Partial],
+    lines: &[ModeLine],
+    band_hz: (f64, f64),
+    anchors: (usize, usize),
+    ensemble: Option<&[Vec<f64>]>,
+) -> Option<Matching> {
+    let (anchor_partials, anchor_lines) = anchors;
     if partials.is_empty() || lines.is_empty() {
         return None;
     }
@@ -170,6 +187,7 @@ pub fn match_modes_with(
             .last()
             .map(|&i| partials[i].frequency_hz * 1.02)
             .unwrap_or(band_hz.1),
+        ensemble,
     };
     let mut results: Vec<Matching> = Vec::new();
     // The refinement depends on the seed only through its first
@@ -197,6 +215,17 @@ pub fn match_modes_with(
     }
     let hypotheses = results.len();
     results.sort_by(|a, b| b.score.total_cmp(&a.score));
+    if std::env::var_os("TONUS_DEBUG_MATCH").is_some() {
+        for r in results.iter().take(8) {
+            eprintln!(
+                "c {:.3} score {:.2} assigned {} missing {}",
+                r.wave_speed_m_per_s,
+                r.score,
+                r.assignments.len(),
+                r.missing.len()
+            );
+        }
+    }
     let mut best = results.first()?.clone();
     best.hypotheses = hypotheses;
     add_alternatives(
@@ -263,6 +292,8 @@ struct ScoreContext<'a> {
     band_cents: f64,
     f_low: f64,
     f_high: f64,
+    /// Couplings of the first lines at possible (tap, pickup) pairs.
+    ensemble: Option<&'a [Vec<f64>]>,
 }
 
 /// Local spacing of the lines that can show a partial (coupling at least
@@ -451,7 +482,6 @@ fn score(
     ctx: &ScoreContext,
 ) -> Matching {
     let s = MATCH_SCATTER_CENTS;
-    let norm = s * (2.0 * std::f64::consts::PI).sqrt();
     // Prior weights: the coupling of the lines in the band, summed by
     // prefix sums over the sorted line list.
     let ln_c = c.ln();
@@ -485,7 +515,7 @@ fn score(
                 let k = line.coupling;
                 if k > 0.0 {
                     let r = CENTS_PER_LN * (lg - lf);
-                    mode_density += k / weight_sum * (-r * r / (2.0 * s * s)).exp() / norm;
+                    mode_density += k / weight_sum * scatter_density(r);
                 }
             }
         }
@@ -512,10 +542,28 @@ fn score(
             && l.coupling >= WEAK_COUPLING
         {
             missing.push(j);
-            if f <= low_top * (1.0 + 1e-9) {
+            if f <= low_top * (1.0 + 1e-9) && ctx.ensemble.is_none() {
                 total += (1.0 - DETECTION_PROBABILITY * l.coupling).ln();
             }
         }
+    }
+    if let Some(ens) = ctx.ensemble {
+        // The isolated lines up to the low modes' top: which show a
+        // partial and which do not.
+        let n_ens = ens.first().map_or(0, Vec::len);
+        let low: Vec<(usize, bool)> = (0..lines.len().min(n_ens))
+            .take_while(|&j| c * lines[j].factor <= low_top * (1.0 + 1e-9))
+            .filter(|&j| ctx.spacing[j] >= 2.0 * s)
+            .map(|j| (j, matched_lines.binary_search(&j).is_ok()))
+            .collect();
+        // Lines past the ensemble's reach count as missing at full
+        // coupling: a hypothesis this crowded at the bottom is wrong.
+        let beyond = (n_ens..lines.len())
+            .take_while(|&j| c * lines[j].factor <= low_top * (1.0 + 1e-9))
+            .filter(|&j| matched_lines.binary_search(&j).is_err())
+            .count();
+        total += pattern_log_likelihood(ens, &low)
+            + beyond as f64 * (1.0 - ENSEMBLE_DETECTION_PROBABILITY).ln();
     }
     let assigned: Vec<bool> = {
         let mut v = vec![false; partials.len()];
@@ -534,6 +582,75 @@ fn score(
         rival: None,
         hypotheses: 0,
     }
+}
+
+/// Scales (cents) of the residual density [`scatter_density`]: how far a
+/// real membrane's partials sit from the model is not known beforehand
+/// (an FFT peak is good to a cent or two; air loading and stiffness move
+/// modes by tens of cents), so the density averages normal densities
+/// over a log-spaced grid of scales up to [`MATCH_SCATTER_CENTS`], a
+/// discrete log-uniform prior on the scale.
+pub const SCATTER_SCALES_CENTS: [f64; 3] = [1.5, 5.0, MATCH_SCATTER_CENTS];
+
+/// The density of a residual r (cents) about its line: the mean of the
+/// normal densities with the scales of [`SCATTER_SCALES_CENTS`]. An exact
+/// match weighs about ten times a match at the edge of the broad scale,
+/// so a labelling whose partials sit on its lines beats one that merely
+/// comes near them.
+pub fn scatter_density(r: f64) -> f64 {
+    let k = SCATTER_SCALES_CENTS.len() as f64;
+    SCATTER_SCALES_CENTS
+        .iter()
+        .map(|&s| (-r * r / (2.0 * s * s)).exp() / (s * (2.0 * std::f64::consts::PI).sqrt()))
+        .sum::<f64>()
+        / k
+}
+
+/// Probability that a line with full coupling shows a partial, in the
+/// pattern likelihood over an unknown tap.
+pub const ENSEMBLE_DETECTION_PROBABILITY: f64 = 0.9;
+/// Coupling at which a line's detection probability reaches 63 % of
+/// [`ENSEMBLE_DETECTION_PROBABILITY`]: −20 dB below its best excitation.
+pub const DETECTION_COUPLING_SCALE: f64 = 0.1;
+/// Probability that a line with no coupling still shows a partial (a tap
+/// is never exactly on a node, and other peaks may sit there).
+pub const NODAL_DETECTION_PROBABILITY: f64 = 0.02;
+
+/// The log-likelihood of which low lines show a partial when the tap and
+/// pickup points are unknown, averaged over the possible points:
+/// ln (1/E)·Σ_e Π_k P(seen_k | κ_ek), with P(seen | κ) =
+/// ε + (p − ε)·(1 − e^(−κ/κ₀)) ([`NODAL_DETECTION_PROBABILITY`],
+/// [`ENSEMBLE_DETECTION_PROBABILITY`], [`DETECTION_COUPLING_SCALE`]).
+/// A tap at the centre silences every mode with a nodal line through it
+/// at once; averaging over the points keeps such patterns likely, where
+/// counting each silent line alone would reject the true labelling.
+/// `low` holds (line index, seen).
+pub fn pattern_log_likelihood(ensemble: &[Vec<f64>], low: &[(usize, bool)]) -> f64 {
+    if ensemble.is_empty() || low.is_empty() {
+        return 0.0;
+    }
+    let (p, eps, k0) = (
+        ENSEMBLE_DETECTION_PROBABILITY,
+        NODAL_DETECTION_PROBABILITY,
+        DETECTION_COUPLING_SCALE,
+    );
+    let lls: Vec<f64> = ensemble
+        .iter()
+        .map(|kappa| {
+            low.iter()
+                .map(|&(j, seen)| {
+                    let q = eps + (p - eps) * (1.0 - (-kappa[j] / k0).exp());
+                    if seen {
+                        q.ln()
+                    } else {
+                        (1.0 - q).ln()
+                    }
+                })
+                .sum::<f64>()
+        })
+        .collect();
+    let top = lls.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    top + (lls.iter().map(|l| (l - top).exp()).sum::<f64>() / lls.len() as f64).ln()
 }
 
 #[cfg(test)]

@@ -234,6 +234,109 @@ impl Shape {
     }
 }
 
+/// Tap and pickup points an unknown excitation may have, for
+/// [`Shape::excitation_ensemble`]: a fixed low-discrepancy set (Halton
+/// bases 2, 3, 5, 7) over the membrane, to which the places people
+/// actually tap are added (the centre, a third across, a quarter across),
+/// each with a pickup from the same set.
+pub const ENSEMBLE_SIZE: usize = 96;
+
+/// The Halton radical inverse of i in the given base, in 0..1.
+fn halton(mut i: usize, base: usize) -> f64 {
+    let (mut f, mut r) = (1.0, 0.0);
+    while i > 0 {
+        f /= base as f64;
+        r += f * (i % base) as f64;
+        i /= base;
+    }
+    r
+}
+
+impl Shape {
+    /// Couplings of the first `n_lines` lines at each of
+    /// [`ENSEMBLE_SIZE`] possible (tap, pickup) pairs, for matching when
+    /// the tap point is not known: `out[e][k]` is line k's |response| in
+    /// pair e, 0..1. A rectangle line sums φ(tap)·φ(pickup) over its
+    /// modes; a circle pair (cos mθ and sin mθ members at one frequency)
+    /// responds as J_m(j·r_t)·J_m(j·r_p)·cos(m·Δθ)/max|J_m|², Δθ the angle
+    /// between the two points.
+    pub fn excitation_ensemble(&self, lines: &[ModeLine], n_lines: usize) -> Vec<Vec<f64>> {
+        let lines = &lines[..n_lines.min(lines.len())];
+        // Structured taps first (rectangle: the centre, a third and a
+        // quarter across; circle: the centre and rings from a third of the
+        // radius out), each with four pickups, then Halton points. Points
+        // are (x/Lx, y/Ly), or (r/a, θ/2π) for a circle.
+        let structured: [(f64, f64); 6] = match self {
+            Shape::Rectangle { .. } => [
+                (0.5, 0.5),
+                (1.0 / 3.0, 0.5),
+                (0.5, 1.0 / 3.0),
+                (0.25, 0.25),
+                (1.0 / 3.0, 1.0 / 3.0),
+                (0.2, 0.5),
+            ],
+            Shape::Circle { .. } => [
+                (0.0, 0.0),
+                (1.0 / 3.0, 0.0),
+                (0.5, 0.0),
+                (2.0 / 3.0, 0.0),
+                (0.8, 0.0),
+                (0.9, 0.0),
+            ],
+        };
+        let per_structured = 4;
+        let circle = matches!(self, Shape::Circle { .. });
+        (0..ENSEMBLE_SIZE)
+            .map(|e| {
+                let i = e + 1;
+                let (tu, tv) = match structured.get(e / per_structured) {
+                    Some(&t) => t,
+                    // Circle radii spread over the area (r = √u).
+                    None if circle => (halton(i, 2).sqrt(), halton(i, 3)),
+                    None => (halton(i, 2), halton(i, 3)),
+                };
+                let (pu, pv) = if circle {
+                    (halton(i, 5).sqrt(), halton(i, 7))
+                } else {
+                    (halton(i, 5), halton(i, 7))
+                };
+                lines
+                    .iter()
+                    .map(|line| match *self {
+                        Shape::Rectangle { .. } => line
+                            .labels
+                            .iter()
+                            .map(|&(m, n)| {
+                                let f = |u: f64, v: f64| {
+                                    (m as f64 * PI * u).sin() * (n as f64 * PI * v).sin()
+                                };
+                                f(tu, tv) * f(pu, pv)
+                            })
+                            .sum::<f64>()
+                            .abs()
+                            .min(1.0),
+                        Shape::Circle { .. } => line
+                            .labels
+                            .iter()
+                            .map(|&(m, n)| {
+                                let (rt, rp) = (tu, pu);
+                                let dtheta = 2.0 * PI * (tv - pv);
+                                let j = bessel::bessel_zero(m, n);
+                                let norm = radial_max(m, j);
+                                (bessel::bessel_j(m, j * rt) * bessel::bessel_j(m, j * rp)
+                                    / (norm * norm)
+                                    * (m as f64 * dtheta).cos())
+                                .abs()
+                            })
+                            .fold(0.0, f64::max)
+                            .min(1.0),
+                    })
+                    .collect()
+            })
+            .collect()
+    }
+}
+
 /// Largest |J_m(x)| for x in 0..j (j a zero of J_m): the first maximum of
 /// |J_m|, since the successive maxima of a Bessel function decrease
 /// (DLMF 10.21(i)). It lies before j_{m,1}, so it is the same for every

@@ -356,6 +356,19 @@ fn relabel(
     (current_lines, current)
 }
 
+/// Lines whose presence or absence the matcher weighs against the
+/// possible tap points ([`matching::pattern_log_likelihood`]).
+pub const ENSEMBLE_LINES: usize = 64;
+
+/// The excitation ensemble of the first [`ENSEMBLE_LINES`] lines when
+/// the tap point is not given (with it, each line's own coupling serves).
+fn ensemble_for(panel: &Panel, lines: &[ModeLine]) -> Option<Vec<Vec<f64>>> {
+    match panel.tap {
+        Some(_) => None,
+        None => Some(panel.shape.excitation_ensemble(lines, ENSEMBLE_LINES)),
+    }
+}
+
 /// Lines far enough up that the lowest partial may be any of the first
 /// few lines: g_max = g(ANCHOR_LINES-th line) · `f_ratio` (the highest
 /// partial over the lowest). The factors do not depend on the tap, so the
@@ -415,7 +428,9 @@ fn biaxial_search(
     let (ap, al) = BIAXIAL_SURVEY_ANCHORS;
     let surveyed = (-steps..=steps)
         .filter_map(|k| {
-            let m = matching::match_modes_with(parts, &lines_at(k), band, ap, al)?;
+            let lines = lines_at(k);
+            let ens = ensemble_for(panel, &lines);
+            let m = matching::match_modes_in(parts, &lines, band, (ap, al), ens.as_deref())?;
             Some((k, m.score))
         })
         .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.abs().cmp(&a.0.abs())));
@@ -425,7 +440,9 @@ fn biaxial_search(
     let mut best: Option<(Vec<ModeLine>, Matching)> = None;
     for k in (k0 - 1).max(-steps)..=(k0 + 1).min(steps) {
         let lines = lines_at(k);
-        if let Some(m) = matching::match_modes(parts, &lines, band) {
+        let ens = ensemble_for(panel, &lines);
+        let full = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
+        if let Some(m) = matching::match_modes_in(parts, &lines, band, full, ens.as_deref()) {
             if best.as_ref().is_none_or(|(_, b)| m.score > b.score) {
                 best = Some((lines, m));
             }
@@ -593,7 +610,14 @@ pub fn measure_with(
             biaxial_search(parts, panel, width.0, height.0, f_hi / f_lo, band)
         }
         _ => {
-            let m = matching::match_modes(parts, &lines, band);
+            let ens = ensemble_for(panel, &lines);
+            let m = matching::match_modes_in(
+                parts,
+                &lines,
+                band,
+                (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES),
+                ens.as_deref(),
+            );
             (lines, m)
         }
     };
