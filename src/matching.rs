@@ -129,7 +129,13 @@ pub fn match_modes_with(
     anchor_partials: usize,
     anchor_lines: usize,
 ) -> Option<Matching> {
-    match_modes_in(partials, lines, band_hz, (anchor_partials, anchor_lines), None)
+    match_modes_in(
+        partials,
+        lines,
+        band_hz,
+        (anchor_partials, anchor_lines),
+        None,
+    )
 }
 
 /// As [`match_modes_with`] (anchors as (partials, lines)); with

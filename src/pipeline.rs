@@ -386,8 +386,10 @@ fn matching_lines(panel: &Panel, f_ratio: f64) -> Vec<ModeLine> {
 }
 
 /// Largest tension ratio Tx/Ty (and smallest, its inverse) the biaxial
-/// search tries: ±47 % anisotropy, beyond any mesh stretched for use.
-pub const BIAXIAL_MAX_RATIO: f64 = 1.6;
+/// search tries: ±100 % anisotropy (one axis three times the other), beyond
+/// any mesh or film stretched for use; a best ratio at either end of the
+/// grid is reported as a search limit.
+pub const BIAXIAL_MAX_RATIO: f64 = 3.0;
 /// Step of the biaxial search in the tension ratio: pure-m and pure-n
 /// modes move by half the step against each other, about 17 cents, within
 /// the matching gate of the nearest grid ratio.
@@ -409,7 +411,7 @@ fn biaxial_search(
     ly: f64,
     f_ratio: f64,
     band: (f64, f64),
-) -> (Vec<ModeLine>, Option<Matching>) {
+) -> (Vec<ModeLine>, Option<Matching>, bool) {
     let steps = (BIAXIAL_MAX_RATIO.ln() / BIAXIAL_RATIO_STEP.ln()).ceil() as i32;
     let lines_at = |k: i32| {
         let rho = BIAXIAL_RATIO_STEP.powi(k);
@@ -435,8 +437,9 @@ fn biaxial_search(
         })
         .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.abs().cmp(&a.0.abs())));
     let Some((k0, _)) = surveyed else {
-        return (Vec::new(), None);
+        return (Vec::new(), None, false);
     };
+    let at_edge = k0.abs() == steps;
     let mut best: Option<(Vec<ModeLine>, Matching)> = None;
     for k in (k0 - 1).max(-steps)..=(k0 + 1).min(steps) {
         let lines = lines_at(k);
@@ -449,8 +452,90 @@ fn biaxial_search(
         }
     }
     match best {
-        Some((l, m)) => (l, Some(m)),
-        None => (Vec::new(), None),
+        Some((l, m)) => (l, Some(m), at_edge),
+        None => (Vec::new(), None, at_edge),
+    }
+}
+
+/// Largest D·k₁₁²/T the plate search tries: the (1,1) mode's bending
+/// term four times its tension term, a plate-dominated panel.
+pub const PLATE_MAX_BETA: f64 = 4.0;
+/// Smallest nonzero β of the plate search's geometric grid (β = 0, the
+/// membrane, is tried as well).
+pub const PLATE_MIN_BETA: f64 = 0.005;
+/// Ratio between neighbouring β of the grid: a mode with k² = q·k₁₁²
+/// moves against the fundamental by ½·ln(step)·(βq/(1+βq) − β/(1+β)) in
+/// ln f, under 70 cents for any q, which the relabelling that follows
+/// takes up.
+pub const PLATE_BETA_STEP: f64 = 1.08;
+
+/// The plate's labelling start: for a fixed β = D·k₁₁²/T the prestressed
+/// plate's frequencies are f = c·g_β(m,n) with c² = T/σ and
+/// g_β = (k/2π)·√(1 + β·k²/k₁₁²), a one-parameter scale family like the
+/// membrane's, so the matcher runs on those lines for β = 0 and a geometric grid
+/// from [`PLATE_MIN_BETA`] to [`PLATE_MAX_BETA`]: a quick survey, then the
+/// full search at the best β and its neighbours. Returns the lines, the
+/// matching and whether the best β lies at the grid's top.
+fn plate_search(
+    parts: &[crate::partials::Partial],
+    panel: &Panel,
+    iso_lines: &[ModeLine],
+    lx: f64,
+    ly: f64,
+    band: (f64, f64),
+) -> (Vec<ModeLine>, Option<Matching>, bool) {
+    let steps = ((PLATE_MAX_BETA / PLATE_MIN_BETA).ln() / PLATE_BETA_STEP.ln()).ceil() as i32;
+    let beta_at = |k: i32| {
+        if k == 0 {
+            0.0
+        } else {
+            PLATE_MIN_BETA * PLATE_BETA_STEP.powi(k - 1)
+        }
+    };
+    let k11 = crate::plate::k_squared(lx, ly, 1, 1);
+    let lines_at = |k: i32| -> Vec<ModeLine> {
+        let beta = beta_at(k);
+        let mut out: Vec<ModeLine> = iso_lines
+            .iter()
+            .map(|l| {
+                let (m, n) = l.labels[0];
+                let k2 = crate::plate::k_squared(lx, ly, m, n);
+                ModeLine {
+                    factor: k2.sqrt() / (2.0 * std::f64::consts::PI)
+                        * (1.0 + beta * k2 / k11).sqrt(),
+                    ..l.clone()
+                }
+            })
+            .collect();
+        out.sort_by(|a, b| a.factor.total_cmp(&b.factor));
+        out
+    };
+    let (ap, al) = BIAXIAL_SURVEY_ANCHORS;
+    let surveyed = (0..=steps)
+        .filter_map(|k| {
+            let lines = lines_at(k);
+            let ens = ensemble_for(panel, &lines);
+            let m = matching::match_modes_in(parts, &lines, band, (ap, al), ens.as_deref())?;
+            Some((k, m.score))
+        })
+        .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.cmp(&a.0)));
+    let Some((k0, _)) = surveyed else {
+        return (Vec::new(), None, false);
+    };
+    let mut best: Option<(Vec<ModeLine>, Matching)> = None;
+    for k in (k0 - 1).max(0)..=(k0 + 1).min(steps) {
+        let lines = lines_at(k);
+        let ens = ensemble_for(panel, &lines);
+        let full = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
+        if let Some(m) = matching::match_modes_in(parts, &lines, band, full, ens.as_deref()) {
+            if best.as_ref().is_none_or(|(_, b)| m.score > b.score) {
+                best = Some((lines, m));
+            }
+        }
+    }
+    match best {
+        Some((l, m)) => (l, Some(m), k0 == steps),
+        None => (Vec::new(), None, false),
     }
 }
 
@@ -607,7 +692,26 @@ pub fn measure_with(
     // by more than the matching gate.
     let (lines, matching) = match (opts.model, panel.shape) {
         (FitModel::Biaxial, Shape::Rectangle { width, height }) if !parts.is_empty() => {
-            biaxial_search(parts, panel, width.0, height.0, f_hi / f_lo, band)
+            let (l, m, edge) = biaxial_search(parts, panel, width.0, height.0, f_hi / f_lo, band);
+            if edge {
+                warnings.push(Warning::SearchLimit {
+                    detail: format!(
+                        "the best tension ratio Tx/Ty lies at the end of the searched range 1/{BIAXIAL_MAX_RATIO} to {BIAXIAL_MAX_RATIO}; the panel may be more anisotropic than tonus searches"
+                    ),
+                });
+            }
+            (l, m)
+        }
+        (FitModel::Stiff, Shape::Rectangle { width, height }) if !parts.is_empty() => {
+            let (l, m, edge) = plate_search(parts, panel, &lines, width.0, height.0, band);
+            if edge {
+                warnings.push(Warning::SearchLimit {
+                    detail: format!(
+                        "the best D·k₁₁²/T lies at the top of the searched range (up to {PLATE_MAX_BETA}); the panel may be stiffer than tonus searches"
+                    ),
+                });
+            }
+            (l, m)
         }
         _ => {
             let ens = ensemble_for(panel, &lines);

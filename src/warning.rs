@@ -68,6 +68,12 @@ pub enum Warning {
         /// The two frequencies, Hz.
         frequencies_hz: (f64, f64),
     },
+    /// A search reached the end of its range (or a cap on its work):
+    /// what lies beyond was not examined.
+    SearchLimit {
+        /// Which limit, and what it may mean.
+        detail: String,
+    },
 }
 
 impl std::fmt::Display for Warning {
@@ -131,6 +137,7 @@ impl std::fmt::Display for Warning {
                 "modes {} are not in the calibration and were left out of the fit; add reference recordings that show them",
                 labels.join(", ")
             ),
+            Warning::SearchLimit { detail } => write!(f, "search limit: {detail}"),
             Warning::ShortSpan { span_s } => write!(
                 f,
                 "short analysis span ({:.0} ms): close partials may merge",
