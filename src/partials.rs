@@ -24,6 +24,9 @@ pub const DEFAULT_MIN_PROMINENCE_DB: f64 = 6.0;
 pub const DYNAMIC_RANGE_DB: f64 = 60.0;
 /// Default lowest frequency searched, Hz.
 pub const DEFAULT_MIN_FREQUENCY_HZ: f64 = 20.0;
+/// Partials kept by frequency beside the strongest [`DEFAULT_MAX_PARTIALS`]:
+/// the lowest this many that pass the tests.
+pub const LOW_PARTIALS_KEPT: usize = 24;
 /// Default largest number of partials kept (the strongest).
 pub const DEFAULT_MAX_PARTIALS: usize = 48;
 /// A partial is a hum candidate within this distance (Hz) of k·mains/k, i.e.
@@ -408,7 +411,25 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
     if let Some(top) = cands.first().map(|p| p.level_db) {
         cands.retain(|p| p.level_db >= top - DYNAMIC_RANGE_DB);
     }
-    cands.truncate(cfg.max_partials);
+    // The strongest `max_partials`, and beside them the lowest
+    // LOW_PARTIALS_KEPT: a long or dense panel's many strong high modes
+    // must not push out the weaker low ones, which decide the labelling.
+    if cands.len() > cfg.max_partials {
+        let mut by_freq: Vec<usize> = (0..cands.len()).collect();
+        by_freq.sort_by(|&a, &b| cands[a].frequency_hz.total_cmp(&cands[b].frequency_hz));
+        let mut keep = vec![false; cands.len()];
+        for k in keep.iter_mut().take(cfg.max_partials) {
+            *k = true;
+        }
+        for &i in by_freq.iter().take(LOW_PARTIALS_KEPT) {
+            keep[i] = true;
+        }
+        let mut i = 0;
+        cands.retain(|_| {
+            i += 1;
+            keep[i - 1]
+        });
+    }
     cands
 }
 
