@@ -111,6 +111,21 @@ pub fn tension(wave_speed: MetersPerSecond, areal_density: KgPerM2) -> NewtonsPe
 }
 
 impl Shape {
+    /// The largest frequency factor (1/m) [`Shape::lines`] goes to: where
+    /// Weyl's law for the membrane, N(g) ≈ π·A·g² modes below g (A the
+    /// area; H. Weyl 1911, the leading term, which overcounts a fixed
+    /// edge), reaches [`MAX_LINES`] lines (a circle's lines are mostly
+    /// pairs of modes). The work of predicting lines is bounded by it
+    /// whatever a recording's partials ask for; hypotheses that would need
+    /// lines beyond it are not scored.
+    pub fn factor_cap(&self) -> f64 {
+        let (area, modes_per_line) = match *self {
+            Shape::Rectangle { width, height } => (width.0 * height.0, 1.0),
+            Shape::Circle { radius } => (PI * radius.0 * radius.0, 2.0),
+        };
+        (MAX_LINES as f64 * modes_per_line / (PI * area.max(1e-12))).sqrt()
+    }
+
     /// Frequency factor of the lowest mode.
     pub fn fundamental_factor(&self) -> f64 {
         match *self {
@@ -153,6 +168,7 @@ impl Shape {
         tap: Option<Point>,
         pickup: Option<Point>,
     ) -> Vec<ModeLine> {
+        let max_factor = max_factor.min(self.factor_cap());
         let mut modes: Vec<(f64, u32, u32, usize)> = Vec::new();
         match *self {
             Shape::Rectangle { width, height } => {

@@ -374,6 +374,11 @@ fn ensemble_for(panel: &Panel, lines: &[ModeLine]) -> Option<Vec<Vec<f64>>> {
 /// partial over the lowest). The factors do not depend on the tap, so the
 /// cache serves here.
 fn matching_lines(panel: &Panel, f_ratio: f64) -> Vec<ModeLine> {
+    cached_lines(panel, matching_factor(panel, f_ratio))
+}
+
+/// The largest frequency factor [`matching_lines`] asks for.
+fn matching_factor(panel: &Panel, f_ratio: f64) -> f64 {
     let g_probe = panel.shape.fundamental_factor() * 6.0;
     let g_anchor = with_cached_lines(panel, g_probe, |all| {
         let below = all.partition_point(|l| l.factor <= g_probe * (1.0 + 1e-12));
@@ -382,7 +387,7 @@ fn matching_lines(panel: &Panel, f_ratio: f64) -> Vec<ModeLine> {
             .map(|l| l.factor)
     })
     .unwrap_or(panel.shape.fundamental_factor());
-    cached_lines(panel, g_anchor * f_ratio * 1.05)
+    g_anchor * f_ratio * 1.05
 }
 
 /// Largest tension ratio Tx/Ty (and smallest, its inverse) the biaxial
@@ -736,6 +741,23 @@ pub fn measure_with(
         }
         (_, other, _) => (lines, other),
     };
+    // The line cap (Weyl's law, `Shape::factor_cap`) bounds the work; say
+    // so when the chosen labelling's wave speed leaves partials above the
+    // last line predicted.
+    if let (Some(m), Some(top)) = (&matching, lines.last()) {
+        let c = m.wave_speed_m_per_s;
+        if c * top.factor < f_hi * 0.999
+            && matching_factor(panel, f_hi / f_lo) > panel.shape.factor_cap()
+        {
+            warnings.push(Warning::SearchLimit {
+                detail: format!(
+                    "partials above {:.0} Hz lie beyond the {} lines predicted (the bound on the work per recording) and were not labelled",
+                    c * top.factor,
+                    lines.len()
+                ),
+            });
+        }
+    }
     let mut fit_result = None;
     let mut identifiability = None;
     let mut biaxial: Option<crate::biaxial::Biaxial> = None;
