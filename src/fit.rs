@@ -177,7 +177,7 @@ fn ln_resid(o: &Observation, c: f64) -> f64 {
 
 /// Indices of the observations kept after outlier rejection, given
 /// residuals (any unit).
-fn inliers(resid: &[f64]) -> Vec<usize> {
+pub(crate) fn inliers(resid: &[f64]) -> Vec<usize> {
     if resid.len() < 4 {
         return (0..resid.len()).collect();
     }

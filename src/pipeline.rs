@@ -876,6 +876,38 @@ pub fn measure_with(
                     })
                     .collect();
                 plate = crate::plate::fit(&pairs, panel.areal_density.map(|s| s.0));
+                // Outliers as for the membrane: residuals beyond
+                // OUTLIER_MADS scaled MADs leave the fit, which is redone.
+                let mut plate_outliers: Vec<usize> = Vec::new();
+                if let Some(pf) = &plate {
+                    let r: Vec<f64> = pf
+                        .residuals_cents
+                        .iter()
+                        .map(|c| c / fit::CENTS_PER_LN)
+                        .collect();
+                    let keep = fit::inliers(&r);
+                    if keep.len() < pairs.len() {
+                        let kept: Vec<(f64, f64)> = keep.iter().map(|&i| pairs[i]).collect();
+                        if let Some(refit) =
+                            crate::plate::fit(&kept, panel.areal_density.map(|s| s.0))
+                        {
+                            plate = Some(refit);
+                            plate_outliers =
+                                (0..pairs.len()).filter(|i| !keep.contains(i)).collect();
+                        }
+                    }
+                }
+                if let Some(neg) = plate.as_ref().and_then(|pf| pf.negative_d_over_sigma) {
+                    if neg.value < -2.0 * neg.standard_uncertainty {
+                        warnings.push(Warning::ModelMisfit {
+                            detail: format!(
+                                "the free fit puts the bending stiffness below zero (D/σ = {:.3e} ± {:.1e} m⁴/s²); the plate model does not fit, D is held at 0",
+                                neg.value, neg.standard_uncertainty
+                            ),
+                        });
+                    }
+                }
+                let n_plate = pairs.len() - plate_outliers.len();
                 // Young's modulus where thickness and ν are given; D's
                 // uncertainty includes σ's (D = σ·(D/σ)).
                 if let (Some(pf), Some(mat), Some(s)) =
@@ -903,9 +935,9 @@ pub fn measure_with(
                         };
                         f.plate = Some((pf.t_over_sigma.value, pf.d_over_sigma.value, width.0, height.0));
                         f.rms_residual_cents = pf.rms_residual_cents;
-                        f.outliers = Vec::new();
-                        f.n_used = fit_obs.len();
-                        f.dof = fit_obs.len().saturating_sub(2);
+                        f.outliers = plate_outliers.clone();
+                        f.n_used = n_plate;
+                        f.dof = n_plate.saturating_sub(2);
                         f.iterations = pf.iterations;
                         f.stop_reason = "Gauss–Newton converged".into();
                         f.uncertainty_method = format!(

@@ -50,6 +50,12 @@ pub struct PlateFit {
     /// Young's modulus E, Pa, where thickness and Poisson's ratio are
     /// given ([`youngs_modulus`]).
     pub youngs_modulus: Option<Estimate>,
+    /// When the free fit put D/σ below zero: that unconstrained value
+    /// (m⁴/s²). The reported fit then holds D = 0 (a bending stiffness is
+    /// never negative; the constrained least-squares optimum lies on the
+    /// bound), and a value far below zero says the plate model does not
+    /// fit.
+    pub negative_d_over_sigma: Option<Estimate>,
 }
 
 /// Young's modulus from the bending stiffness of a thin plate:
@@ -137,6 +143,32 @@ pub fn fit(obs: &[(f64, f64)], sigma: Option<f64>) -> Option<PlateFit> {
             break;
         }
     }
+    // D ≥ 0: a negative optimum moves to the bound D = 0, where the model
+    // is the membrane's and ln P = mean of (2 ln f − ln u) is closed form;
+    // D keeps the free fit's uncertainty as its scale.
+    let mut negative = None;
+    if q < 0.0 {
+        negative = Some(Estimate {
+            value: q,
+            standard_uncertainty: cov[2].max(0.0).sqrt(),
+        });
+        let ln_p = obs
+            .iter()
+            .map(|&(f, k2)| 2.0 * f.ln() - basis(k2).0.ln())
+            .sum::<f64>()
+            / obs.len() as f64;
+        p = ln_p.exp();
+        q = 0.0;
+        let mut ss = 0.0;
+        for (i, &(f, k2)) in obs.iter().enumerate() {
+            resid[i] = f.ln() - 0.5 * (p * basis(k2).0).ln();
+            ss += resid[i] * resid[i];
+        }
+        let dof = (obs.len() as f64 - 1.0).max(1.0);
+        let s2 = (ss / dof).max((FREQUENCY_FLOOR_CENTS / CENTS_PER_LN).powi(2));
+        // var(ln P) = 4·s²/N for the mean of 2·ln f.
+        cov = [4.0 * s2 / obs.len() as f64 * p * p, 0.0, cov[2]];
+    }
     // The method's common error acts on ln f, i.e. like a scale error on
     // both P and Q: var(ln P) and var(ln Q) each gain (2·δ)².
     let common = (2.0 * METHOD_CENTS / CENTS_PER_LN).powi(2);
@@ -166,6 +198,7 @@ pub fn fit(obs: &[(f64, f64)], sigma: Option<f64>) -> Option<PlateFit> {
         rms_residual_cents: rms,
         iterations,
         youngs_modulus: None,
+        negative_d_over_sigma: negative,
     })
 }
 

@@ -156,6 +156,7 @@ pub fn grade(
                 &mut g,
             ),
             Warning::NoOnset => worse(Grade::Fair, "no tap onset found".into(), &mut g),
+            Warning::ModelMisfit { detail } => worse(Grade::Doubtful, detail.clone(), &mut g),
             _ => {}
         }
     }

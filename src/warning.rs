@@ -68,6 +68,12 @@ pub enum Warning {
         /// The two frequencies, Hz.
         frequencies_hz: (f64, f64),
     },
+    /// The model does not describe the recording (a negative bending
+    /// stiffness, dimensions the modes contradict): the fit is doubtful.
+    ModelMisfit {
+        /// What does not fit, and what would.
+        detail: String,
+    },
     /// A search reached the end of its range (or a cap on its work):
     /// what lies beyond was not examined.
     SearchLimit {
@@ -137,6 +143,7 @@ impl std::fmt::Display for Warning {
                 "modes {} are not in the calibration and were left out of the fit; add reference recordings that show them",
                 labels.join(", ")
             ),
+            Warning::ModelMisfit { detail } => write!(f, "model misfit: {detail}"),
             Warning::SearchLimit { detail } => write!(f, "search limit: {detail}"),
             Warning::ShortSpan { span_s } => write!(
                 f,
