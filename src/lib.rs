@@ -7,6 +7,7 @@
 //! results. [`synth`] makes test and demo recordings by modal synthesis.
 
 pub mod airload;
+pub mod aspect;
 pub mod batch;
 pub mod bessel;
 pub mod biaxial;

@@ -147,7 +147,8 @@ pub struct Measurement {
 /// partials within [`matching::MATCH_GATE_CENTS`] of it (at the matched
 /// wave speed) and nearer to it than to any other coupled line, either
 /// assigned to it or left unmatched. When there are two or more, the two
-/// strongest are a pair: the first keeps the assignment, the second is
+/// strongest are a pair, when their mean lies on the line within
+/// [`matching::MATCH_SCATTER_CENTS`]: the first keeps the assignment, the second is
 /// taken out of the assignments and the unmatched list. Returns the
 /// (kept, absorbed) partial indices.
 fn pair_partners(
@@ -191,6 +192,16 @@ fn pair_partners(
         }
         cands.sort_by(|&a, &b| parts[b].level_db.total_cmp(&parts[a].level_db));
         let (p, q) = (cands[0], cands[1]);
+        // A split pair's members lie about the unsplit frequency (to first
+        // order symmetrically, `evenness`): their mean must sit on the
+        // line within the matching scatter, or the second partial is some
+        // other peak that happens to be near.
+        let mean_cents = 0.5
+            * (cents(parts[p].frequency_hz, line.factor)
+                + cents(parts[q].frequency_hz, line.factor));
+        if mean_cents.abs() > matching::MATCH_SCATTER_CENTS {
+            continue;
+        }
         // The kept member holds this line's assignment.
         let kept = match m
             .assignments
@@ -395,6 +406,19 @@ fn matching_factor(panel: &Panel, f_ratio: f64) -> f64 {
 /// any mesh or film stretched for use; a best ratio at either end of the
 /// grid is reported as a search limit.
 pub const BIAXIAL_MAX_RATIO: f64 = 3.0;
+/// Largest ratio (Lx/Lx_entered)⁻² the isotropic rectangle's labelling
+/// tries, and its inverse: a side entered up to about 8 % wrong still
+/// labels right (and the aspect check then says so).
+pub const ASPECT_SEARCH_MAX_RATIO: f64 = 1.17;
+/// Step of the aspect search in (Lx_entered/Lx)²: pure-m and pure-n
+/// modes move by at most ¼·ln(step) against each other between grid
+/// points, about 6 cents, within the matcher's middle scatter scale.
+pub const ASPECT_SEARCH_STEP: f64 = 1.015;
+/// Prior probability that the sides were entered right, in the isotropic
+/// rectangle's aspect search: most are, so another aspect ratio must
+/// explain the partials clearly better (by ln(0.9·2K/0.1) nats, K grid
+/// ratios either side: about 6 with K = 11) to take the labels.
+pub const ENTERED_SIDES_PRIOR: f64 = 0.9;
 /// Step of the biaxial search in the tension ratio: pure-m and pure-n
 /// modes move by half the step against each other, about 17 cents, within
 /// the matching gate of the nearest grid ratio.
@@ -416,10 +440,22 @@ fn biaxial_search(
     ly: f64,
     f_ratio: f64,
     band: (f64, f64),
+    max_ratio: f64,
+    step: f64,
+    prior_at_one: Option<f64>,
 ) -> (Vec<ModeLine>, Option<Matching>, bool) {
-    let steps = (BIAXIAL_MAX_RATIO.ln() / BIAXIAL_RATIO_STEP.ln()).ceil() as i32;
+    let steps = (max_ratio.ln() / step.ln()).ceil() as i32;
+    // The log prior of each grid ratio: uniform, or (for the aspect
+    // search) probability p₀ that the entered sides are right and the rest
+    // shared by the other ratios, so that another aspect must explain the
+    // partials better by ln(p₀·2K/(1 − p₀)) to be chosen.
+    let log_prior = |k: i32| match prior_at_one {
+        None => 0.0,
+        Some(p0) if k == 0 => p0.ln(),
+        Some(p0) => ((1.0 - p0) / (2 * steps) as f64).ln(),
+    };
     let lines_at = |k: i32| {
-        let rho = BIAXIAL_RATIO_STEP.powi(k);
+        let rho = step.powi(k);
         let p = Panel {
             shape: Shape::Rectangle {
                 width: crate::units::Meters(lx / rho.sqrt()),
@@ -432,30 +468,49 @@ fn biaxial_search(
     // A quick survey of every ratio with the fewer anchors of
     // BIAXIAL_SURVEY_ANCHORS, then the full search at the best ratio and
     // its two neighbours.
-    let (ap, al) = BIAXIAL_SURVEY_ANCHORS;
+    let (ap, al) = if prior_at_one.is_some() {
+        (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES)
+    } else {
+        BIAXIAL_SURVEY_ANCHORS
+    };
     let surveyed = (-steps..=steps)
         .filter_map(|k| {
             let lines = lines_at(k);
             let ens = ensemble_for(panel, &lines);
             let m = matching::match_modes_in(parts, &lines, band, (ap, al), ens.as_deref())?;
-            Some((k, m.score))
+            if std::env::var_os("TONUS_DEBUG_SURVEY").is_some() {
+                eprintln!(
+                    "survey k {k} c {:.3} score {:.2} prior {:.2} n {}",
+                    m.wave_speed_m_per_s,
+                    m.score,
+                    log_prior(k),
+                    m.assignments.len()
+                );
+            }
+            Some((k, m.score + log_prior(k)))
         })
         .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.abs().cmp(&a.0.abs())));
     let Some((k0, _)) = surveyed else {
         return (Vec::new(), None, false);
     };
     let at_edge = k0.abs() == steps;
-    let mut best: Option<(Vec<ModeLine>, Matching)> = None;
-    for k in (k0 - 1).max(-steps)..=(k0 + 1).min(steps) {
+    let mut best: Option<(Vec<ModeLine>, Matching, f64)> = None;
+    let mut ks: Vec<i32> = ((k0 - 1).max(-steps)..=(k0 + 1).min(steps)).collect();
+    if prior_at_one.is_some() && !ks.contains(&0) {
+        ks.push(0);
+    }
+    for k in ks {
         let lines = lines_at(k);
         let ens = ensemble_for(panel, &lines);
         let full = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
         if let Some(m) = matching::match_modes_in(parts, &lines, band, full, ens.as_deref()) {
-            if best.as_ref().is_none_or(|(_, b)| m.score > b.score) {
-                best = Some((lines, m));
+            let score = m.score + log_prior(k);
+            if best.as_ref().is_none_or(|(_, _, b)| score > *b) {
+                best = Some((lines, m, score));
             }
         }
     }
+    let best = best.map(|(l, m, _)| (l, m));
     match best {
         Some((l, m)) => (l, Some(m), at_edge),
         None => (Vec::new(), None, at_edge),
@@ -697,7 +752,17 @@ pub fn measure_with(
     // by more than the matching gate.
     let (lines, matching) = match (opts.model, panel.shape) {
         (FitModel::Biaxial, Shape::Rectangle { width, height }) if !parts.is_empty() => {
-            let (l, m, edge) = biaxial_search(parts, panel, width.0, height.0, f_hi / f_lo, band);
+            let (l, m, edge) = biaxial_search(
+                parts,
+                panel,
+                width.0,
+                height.0,
+                f_hi / f_lo,
+                band,
+                BIAXIAL_MAX_RATIO,
+                BIAXIAL_RATIO_STEP,
+                None,
+            );
             if edge {
                 warnings.push(Warning::SearchLimit {
                     detail: format!(
@@ -717,6 +782,39 @@ pub fn measure_with(
                 });
             }
             (l, m)
+        }
+        // An isotropic rectangle: the labels come from the best of a
+        // narrow grid of aspect ratios (a side may be entered wrong, which
+        // moves the pure-m and pure-n modes apart like unequal tension),
+        // then stand on the entered sides' lines for the fit, whose aspect
+        // check says whether the sides agree.
+        (FitModel::Isotropic, Shape::Rectangle { width, height })
+            if !parts.is_empty() && opts.calibration.is_none() =>
+        {
+            let (l, m, _) = biaxial_search(
+                parts,
+                panel,
+                width.0,
+                height.0,
+                f_hi / f_lo,
+                band,
+                ASPECT_SEARCH_MAX_RATIO,
+                ASPECT_SEARCH_STEP,
+                Some(ENTERED_SIDES_PRIOR),
+            );
+            let entered: Vec<ModeLine> = l
+                .into_iter()
+                .map(|line| {
+                    let (mm, nn) = line.labels[0];
+                    ModeLine {
+                        factor: crate::membrane::rect_mode_frequency_hz(
+                            width.0, height.0, 1.0, mm, nn,
+                        ),
+                        ..line
+                    }
+                })
+                .collect();
+            (entered, m)
         }
         _ => {
             let ens = ensemble_for(panel, &lines);
@@ -966,6 +1064,47 @@ pub fn measure_with(
                 )));
             }
             identifiability = Some(id);
+        }
+        // An isotropic rectangle: do the modes agree with the sides?
+        if let (FitModel::Isotropic, None, Some(f), Shape::Rectangle { width, height }) = (
+            opts.model,
+            &opts.calibration,
+            fit_result.as_mut(),
+            panel.shape,
+        ) {
+            // A split pair on a line of two modes ((m,n)/(n,m) of a
+            // square) enters as its two members, the lower as the mode
+            // with more half-waves along x: one consistent choice, since
+            // the swapped one only exchanges the roles of the sides.
+            let mut kept: Vec<Observation> = Vec::new();
+            let outlier_obs: Vec<usize> = f.outliers.iter().map(|&k| fit_idx[k]).collect();
+            for i in (0..obs.len()).filter(|i| !outlier_obs.contains(i) && !uncal[*i]) {
+                let line = &lines[m.assignments[i].line];
+                let pair = parts[m.assignments[i].partial].pair;
+                match (pair, line.labels.as_slice()) {
+                    (Some(pr), [a, b]) if a.0 != b.0 => {
+                        let (hi_m, lo_m) = if a.0 > b.0 { (*a, *b) } else { (*b, *a) };
+                        for (fhz, mode) in
+                            [(pr.lower.frequency_hz, hi_m), (pr.upper.frequency_hz, lo_m)]
+                        {
+                            kept.push(Observation {
+                                frequency_hz: fhz,
+                                factor: crate::membrane::rect_mode_frequency_hz(
+                                    width.0, height.0, 1.0, mode.0, mode.1,
+                                ),
+                                mode,
+                            });
+                        }
+                    }
+                    _ => kept.push(obs[i].clone()),
+                }
+            }
+            if let Some(check) = crate::aspect::check(&kept, width.0, height.0) {
+                check.widen(f);
+                if let Some(w) = check.warning(width.0, height.0) {
+                    warnings.push(w);
+                }
+            }
         }
         // Residuals for every assignment, outliers in its numbering.
         if let Some(f) = fit_result.as_mut() {

@@ -164,6 +164,17 @@ pub struct Scorecard {
 /// An unreadable folder, or a `truth.json` that does not parse or lacks
 /// its inputs (the corpus itself is broken; say which file).
 pub fn run(dir: &Path, with_tap: bool) -> Result<Scorecard> {
+    run_scaled(dir, with_tap, (1.0, 1.0))
+}
+
+/// As [`run`], with the entered width (or diameter) and height multiplied
+/// by `scale`, as a user who measured a side wrong would enter them (the
+/// truth is unchanged): the check of what tonus says when the inputs are
+/// off.
+///
+/// # Errors
+/// As [`run`].
+pub fn run_scaled(dir: &Path, with_tap: bool, scale: (f64, f64)) -> Result<Scorecard> {
     let mut ids: Vec<PathBuf> = std::fs::read_dir(dir)
         .map_err(|e| TonusError::Io {
             path: dir.to_path_buf(),
@@ -181,7 +192,7 @@ pub fn run(dir: &Path, with_tap: bool) -> Result<Scorecard> {
     }
     let cases = ids
         .iter()
-        .map(|case| score_case(case, with_tap))
+        .map(|case| score_case_scaled(case, with_tap, scale))
         .collect::<Result<Vec<_>>>()?;
     Ok(Scorecard { cases, with_tap })
 }
@@ -202,6 +213,15 @@ fn num(v: &Value, key: &str) -> Option<f64> {
 /// # Errors
 /// A broken `truth.json`.
 pub fn score_case(case: &Path, with_tap: bool) -> Result<CaseScore> {
+    score_case_scaled(case, with_tap, (1.0, 1.0))
+}
+
+/// As [`score_case`], with the entered width (or diameter) and height
+/// scaled ([`run_scaled`]).
+///
+/// # Errors
+/// A broken `truth.json`.
+pub fn score_case_scaled(case: &Path, with_tap: bool, scale: (f64, f64)) -> Result<CaseScore> {
     let truth_path = case.join("truth.json");
     let text = std::fs::read_to_string(&truth_path).map_err(|e| TonusError::Io {
         path: truth_path.clone(),
@@ -249,10 +269,10 @@ pub fn score_case(case: &Path, with_tap: bool) -> Result<CaseScore> {
     };
     let (lx, ly) = (num(inputs, "lx_m"), num(inputs, "ly_m"));
     if shape == "circle" {
-        spec.diameter = num(inputs, "diameter_m").map(|d| format!("{d}m"));
+        spec.diameter = num(inputs, "diameter_m").map(|d| format!("{}m", d * scale.0));
     } else {
-        spec.width = lx.map(|v| format!("{v}m"));
-        spec.height = ly.map(|v| format!("{v}m"));
+        spec.width = lx.map(|v| format!("{}m", v * scale.0));
+        spec.height = ly.map(|v| format!("{}m", v * scale.1));
     }
     if with_tap {
         let ex = t.get("excitation").cloned().unwrap_or(Value::Null);

@@ -120,3 +120,35 @@ fn issue_11_bad_inputs_are_one_line_errors() {
     }
     assert_eq!(seen, 7, "seven bad inputs that must be refused");
 }
+
+/// A side entered wrong (3 % and 4 %): every isotropic rectangle of the
+/// corpus is graded doubtful, with the effective side named, and its
+/// stated uncertainty covers the tension error (|z| ≤ 2.5, all but at most
+/// one per run). Circles cannot be checked this way: a diameter only
+/// scales the tension.
+#[test]
+fn issue_11_a_side_entered_wrong_is_caught() {
+    let dir = corpus_dir();
+    for scale in [(1.0, 0.97), (1.04, 1.0)] {
+        let card = scorecard::run_scaled(&dir, false, scale).expect("the corpus runs");
+        let rects: Vec<&CaseScore> = card
+            .cases
+            .iter()
+            .filter(|c| c.expect == Expect::Result)
+            .filter(|c| {
+                let truth = std::fs::read_to_string(dir.join(&c.id).join("truth.json")).unwrap();
+                truth.contains("\"shape\": \"rect\"") && truth.contains("\"model\": \"iso\"")
+            })
+            .collect();
+        assert!(rects.len() >= 20, "{} isotropic rectangles", rects.len());
+        for c in &rects {
+            assert!(c.flagged(), "{scale:?} {}: graded {:?}", c.id, c.grade);
+        }
+        let uncovered: Vec<String> = rects
+            .iter()
+            .filter(|c| c.z.is_none_or(|z| z.abs() > 2.5))
+            .map(|c| format!("{} z {:?}", c.id, c.z))
+            .collect();
+        assert!(uncovered.len() <= 1, "{scale:?}: {uncovered:?}");
+    }
+}
