@@ -578,7 +578,9 @@ fn decode_symphonia_inner(path: &Path, bytes: Vec<u8>, kind: Kind) -> Result<Dec
     let mut out: Vec<f64> = Vec::new();
     let mut hits: Vec<bool> = Vec::new();
     if let Some(n) = params.n_frames {
-        let cap = (n as usize).saturating_mul(channels as usize).min(1 << 28);
+        // Reserve for the declared length, but no more than 4 Mi samples
+        // (32 MB) up front: a corrupt header may declare any length.
+        let cap = (n as usize).saturating_mul(channels as usize).min(1 << 22);
         out.reserve(cap);
         hits.reserve(cap);
     }
