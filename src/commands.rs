@@ -47,7 +47,7 @@ pub fn partials(
     cfg: &AnalysisConfig,
     as_json: bool,
 ) -> Result<Outcome> {
-    let rec = recording::read_audio(path, channel)?;
+    let rec = recording::read_wav(path, channel)?;
     let a = partials::analyse(&rec, cfg)?;
     let stdout = if as_json {
         format!(
@@ -96,7 +96,7 @@ pub fn fit(
         picture,
     } = output.clone();
     let out = out.as_deref();
-    let rec = recording::read_audio(path, channel)?;
+    let rec = recording::read_wav(path, channel)?;
     let mut m = pipeline::measure(&rec, panel, opts)?;
     if !m.analysis.tap.further_taps_s.is_empty() {
         // Several taps: fit each, combine the good ones.
@@ -169,7 +169,7 @@ pub fn calibrate(
             path: path.clone(),
             reason: e.to_string(),
         })?;
-        let rec = recording::read_audio(path, channel)?;
+        let rec = recording::read_wav(path, channel)?;
         let m = pipeline::measure(&rec, panel, opts)?;
         let modes: Vec<(u32, u32, f64)> = m
             .modes
@@ -445,7 +445,7 @@ pub fn demo(dir: &Path, out: &Path) -> Result<Outcome> {
         let outcome = (|| -> Result<Measurement> {
             let spec = PanelSpec::from_file(&panel_file)?;
             let panel = Panel::from_spec(&spec)?;
-            let rec = recording::read_audio(wav, ChannelChoice::MixDown)?;
+            let rec = recording::read_wav(wav, ChannelChoice::MixDown)?;
             let opts = crate::cli::fit_options(
                 false,
                 spec.model.as_deref(),
