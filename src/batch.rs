@@ -30,7 +30,7 @@
 //!
 //! The folder is listed every poll interval. Files already there when the
 //! watch starts are left alone. A new file counts as landed when its name
-//! ends in `.wav` (any case) and its size (non-zero) and modification time
+//! ends in `.wav`, `.flac`, `.aif`, `.aiff` or `.aifc` (any case) and its size (non-zero) and modification time
 //! are the same in two consecutive polls. Writers should write under
 //! another name (`NAME.wav.part`, `NAME.tmp`) and rename to `NAME.wav`
 //! when done, which is atomic on one file system; the stability test
@@ -308,7 +308,7 @@ pub struct WatchOptions {
 pub struct StageTiming {
     /// Reading the file and its SHA-256 (parallel).
     pub read_s: f64,
-    /// Decoding the WAV (parallel).
+    /// Decoding the recording (parallel).
     pub decode_s: f64,
     /// The measurement: partials, matching, fit, grade (parallel).
     pub measure_s: f64,
@@ -325,12 +325,13 @@ pub struct StageTiming {
     pub wall_s: f64,
 }
 
-/// Expands folders into their `.wav` files (sorted); files are kept as
+/// Expands folders into their recordings (sorted): the files named `.wav`,
+/// `.flac`, `.aif`, `.aiff` or `.aifc` ([`RECORDING_EXTENSIONS`]); files are kept as
 /// given.
 ///
 /// # Errors
 /// A path that does not exist, a folder that cannot be listed or holds no
-/// `.wav`, and an input list that holds no recording at all.
+/// recording, and an input list that holds no recording at all.
 pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
     let mut out = Vec::new();
     for p in inputs {
@@ -341,12 +342,12 @@ pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
                     reason: e.to_string(),
                 })?
                 .filter_map(|e| e.ok().map(|e| e.path()))
-                .filter(|x| is_wav_name(x))
+                .filter(|x| is_audio_name(x))
                 .collect();
             if v.is_empty() {
                 return Err(TonusError::Io {
                     path: p.clone(),
-                    reason: "a folder with no .wav recording in it; give recordings or folders that hold them".into(),
+                    reason: "a folder with no .wav recording in it (nor .flac, .aif, .aiff or .aifc); give recordings or folders that hold them".into(),
                 });
             }
             v.sort();
@@ -364,8 +365,17 @@ pub fn expand_inputs(inputs: &[PathBuf]) -> Result<Vec<PathBuf>> {
     Ok(out)
 }
 
-fn is_wav_name(p: &Path) -> bool {
-    p.extension().is_some_and(|e| e.eq_ignore_ascii_case("wav"))
+/// File name endings taken as recordings when a folder is scanned or
+/// watched (any case). The content decides the format when the file is
+/// read ([`recording::read_audio`]).
+pub const RECORDING_EXTENSIONS: [&str; 5] = ["wav", "flac", "aif", "aiff", "aifc"];
+
+fn is_audio_name(p: &Path) -> bool {
+    p.extension().is_some_and(|e| {
+        RECORDING_EXTENSIONS
+            .iter()
+            .any(|x| e.eq_ignore_ascii_case(x))
+    })
 }
 
 /// One recording's outcome, formatted on the worker thread.
@@ -405,7 +415,7 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
     add_elapsed(&counters.read_ns, t0);
     let t1 = Instant::now();
     let result = (|| -> Result<(Row, serde_json::Value, BatchEntry)> {
-        let rec = recording::read_wav(file, ChannelChoice::MixDown);
+        let rec = recording::read_audio(file, ChannelChoice::MixDown);
         add_elapsed(&counters.decode_ns, t1);
         let rec = rec?;
         let t2 = Instant::now();
@@ -944,7 +954,8 @@ pub fn inspect_timed(
 /// Size and modification time of a file, for the landing test.
 type Signature = (u64, Option<SystemTime>);
 
-/// The `.wav` files in `dir` with their signatures, sorted by name.
+/// The recordings (`.wav`, `.flac`, `.aif`, `.aiff`, `.aifc`) in `dir` with their
+/// signatures, sorted by name.
 fn wav_listing(dir: &Path) -> Result<Vec<(PathBuf, Signature)>> {
     let rd = std::fs::read_dir(dir).map_err(|e| TonusError::Io {
         path: dir.to_path_buf(),
@@ -952,7 +963,7 @@ fn wav_listing(dir: &Path) -> Result<Vec<(PathBuf, Signature)>> {
     })?;
     let mut v: Vec<(PathBuf, Signature)> = rd
         .filter_map(|e| e.ok())
-        .filter(|e| is_wav_name(&e.path()))
+        .filter(|e| is_audio_name(&e.path()))
         .filter_map(|e| {
             let md = e.metadata().ok()?;
             md.is_file()

@@ -27,7 +27,7 @@ pub struct Cli {
 pub enum Command {
     /// List the partials of a tap recording (frequency, level, SNR, decay).
     Partials {
-        /// The recording (WAV).
+        /// The recording (WAV, FLAC or AIFF).
         recording: PathBuf,
         #[command(flatten)]
         input: InputArgs,
@@ -37,7 +37,7 @@ pub enum Command {
     },
     /// Fit the tension of a membrane to a tap recording.
     Fit {
-        /// The recording (WAV).
+        /// The recording (WAV, FLAC or AIFF).
         recording: PathBuf,
         #[command(flatten)]
         panel: PanelArgs,
@@ -67,7 +67,7 @@ pub enum Command {
     },
     /// Per-mode correction factors from reference recordings at a known tension.
     Calibrate {
-        /// Reference recordings (WAV) of one membrane at the known tension.
+        /// Reference recordings (WAV, FLAC or AIFF) of one membrane at the known tension.
         #[arg(required = true)]
         recordings: Vec<PathBuf>,
         #[command(flatten)]
@@ -181,7 +181,8 @@ pub enum Command {
         /// Recordings and folders of recordings.
         #[arg(required_unless_present = "watch", conflicts_with = "watch")]
         inputs: Vec<PathBuf>,
-        /// Station mode: decide each new .wav as it lands in this folder
+        /// Station mode: decide each new recording (.wav, .flac, .aif, .aiff,
+        /// .aifc) as it lands in this folder
         /// (files already there are left alone).
         #[arg(long, value_name = "DIR")]
         watch: Option<PathBuf>,

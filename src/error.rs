@@ -19,6 +19,12 @@ pub enum TonusError {
     )]
     NotWav { path: PathBuf, reason: String },
 
+    /// The file is none of the audio formats tonus reads.
+    #[error(
+        "{path} is not a readable WAV, FLAC or AIFF file ({found}); tonus reads WAV (RIFF or RF64: PCM or float), FLAC and AIFF/AIFF-C: export the recording as one of these"
+    )]
+    UnknownAudio { path: PathBuf, found: String },
+
     /// The WAV header parsed but the contents cannot be analysed.
     #[error("{path}: {problem}; {hint}")]
     BadRecording {

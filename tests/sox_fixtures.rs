@@ -1,4 +1,6 @@
-//! WAV files written by an outside tool (SoX 14.4.2), read and analysed by tonus.
+//! WAV, FLAC and AIFF files written by an outside tool (SoX 14.4.2), read and
+//! analysed by tonus. Each FLAC and AIFF fixture is SoX's conversion of a WAV
+//! fixture beside it, and must decode to the same samples.
 //!
 //! The fixtures live in tests/fixtures/ and are committed; the tests never run
 //! sox. tests/fixtures/make_fixtures.sh regenerates them byte for byte (`-R`),
@@ -7,7 +9,7 @@
 
 use std::path::PathBuf;
 use tonus::partials::{analyse, AnalysisConfig, Partial};
-use tonus::recording::{read_wav, ChannelChoice, Recording, SampleFormat};
+use tonus::recording::{read_audio, read_wav, ChannelChoice, Recording, SampleFormat};
 
 /// Tolerance on every frequency, Hz.
 const FREQ_TOL_HZ: f64 = 0.02;
@@ -318,4 +320,297 @@ fn refinement_is_at_least_as_accurate_as_the_fft_peak() {
             "{name} at {f} Hz: error {refined:.6} Hz against u {u:.6} Hz"
         );
     }
+}
+
+// ---------------------------------------------------------------------------
+// FLAC and AIFF/AIFF-C (SoX conversions of the WAV fixtures; commands in
+// make_fixtures.sh and the README there).
+
+/// One LSB of a `bits`-bit integer sample at full scale 1 (float 32: one
+/// unit in the last place of a sample near full scale, 2^−23).
+fn lsb(bits: u16, format: SampleFormat) -> f64 {
+    match format {
+        SampleFormat::Pcm => 2f64.powi(1 - bits as i32),
+        SampleFormat::Float => 2f64.powi(-23),
+    }
+}
+
+/// `other` (a FLAC or AIFF file) decodes to the same recording as `wav`:
+/// header facts, length, DC offset, clipping, and every sample within one
+/// LSB (lossless formats: the samples are in fact identical).
+fn check_same_as_wav(wav: &str, other: &str, ch: ChannelChoice) {
+    let a = read(wav, ch);
+    let p = fixture(other);
+    let b = read_audio(&p, ch).unwrap_or_else(|e| panic!("read_audio({other}, {ch:?}): {e}"));
+    assert_eq!(b.sample_rate_hz, a.sample_rate_hz, "{other}: sample rate");
+    assert_eq!(b.channels, a.channels, "{other}: channels");
+    assert_eq!(b.bits_per_sample, a.bits_per_sample, "{other}: bits");
+    assert_eq!(b.sample_format, a.sample_format, "{other}: sample format");
+    assert_eq!(b.samples.len(), a.samples.len(), "{other}: frames");
+    let tol = lsb(a.bits_per_sample, a.sample_format);
+    let worst = a
+        .samples
+        .iter()
+        .zip(&b.samples)
+        .map(|(x, y)| (x - y).abs())
+        .fold(0.0f64, f64::max);
+    eprintln!("{other} vs {wav} ({ch:?}): largest difference {worst:e} (1 LSB = {tol:e})");
+    assert!(
+        worst <= tol,
+        "{other}: differs from {wav} by {worst:e}, more than 1 LSB ({tol:e})"
+    );
+    assert!(
+        (a.dc_offset - b.dc_offset).abs() <= tol,
+        "{other}: DC offset {} vs {}",
+        b.dc_offset,
+        a.dc_offset
+    );
+    assert_eq!(a.clipped_fraction, b.clipped_fraction, "{other}: clipping");
+}
+
+// sox -R sine_1234p5_44k1_s24.wav sine_1234p5_44k1_s24.flac
+#[test]
+fn flac_24bit_equals_wav() {
+    check_same_as_wav(
+        "sine_1234p5_44k1_s24.wav",
+        "sine_1234p5_44k1_s24.flac",
+        ChannelChoice::MixDown,
+    );
+}
+
+// sox -R stereo_300L_700R_44k1_s16.wav stereo_300L_700R_44k1_s16.flac
+#[test]
+fn flac_stereo_equals_wav_for_each_channel_choice() {
+    for ch in [
+        ChannelChoice::MixDown,
+        ChannelChoice::Index(0),
+        ChannelChoice::Index(1),
+    ] {
+        check_same_as_wav(STEREO, "stereo_300L_700R_44k1_s16.flac", ch);
+    }
+    let rec = read("stereo_300L_700R_44k1_s16.flac", ChannelChoice::Index(1));
+    check_strongest(&rec, 700.0);
+    assert!(read_audio(
+        &fixture("stereo_300L_700R_44k1_s16.flac"),
+        ChannelChoice::Index(2)
+    )
+    .is_err());
+}
+
+// sox -R sine_440_48k_s16.wav sine_440_48k_s16.aiff
+#[test]
+fn aiff_16bit_equals_wav() {
+    check_same_as_wav(
+        "sine_440_48k_s16.wav",
+        "sine_440_48k_s16.aiff",
+        ChannelChoice::MixDown,
+    );
+}
+
+// sox -R sine_1234p5_44k1_s24.wav sine_1234p5_44k1_s24.aiff
+#[test]
+fn aiff_24bit_equals_wav() {
+    check_same_as_wav(
+        "sine_1234p5_44k1_s24.wav",
+        "sine_1234p5_44k1_s24.aiff",
+        ChannelChoice::MixDown,
+    );
+}
+
+// sox -R sine_997_48k_f32.wav -e floating-point sine_997_48k_f32.aifc
+// (AIFF-C, compression type `fl32`: big-endian IEEE float).
+#[test]
+fn aifc_float32_equals_wav() {
+    check_same_as_wav(
+        "sine_997_48k_f32.wav",
+        "sine_997_48k_f32.aifc",
+        ChannelChoice::MixDown,
+    );
+    check_strongest(
+        &read("sine_997_48k_f32.aifc", ChannelChoice::MixDown),
+        997.0,
+    );
+}
+
+// cp ../../demo-recordings/screen-a.wav tap_screen_a_48k_s16.wav
+// sox -R tap_screen_a_48k_s16.wav tap_screen_a_48k_s16.flac
+#[test]
+fn tap_flac_equals_wav() {
+    check_same_as_wav(
+        "tap_screen_a_48k_s16.wav",
+        "tap_screen_a_48k_s16.flac",
+        ChannelChoice::MixDown,
+    );
+}
+
+/// Screen A's panel (demo-recordings/screen-a.panel.toml) as flags.
+const SCREEN_A: [&str; 8] = [
+    "--width",
+    "500mm",
+    "--height",
+    "400mm",
+    "--areal-density",
+    "40g/m2",
+    "--tap-at",
+    "0.3,0.35",
+];
+
+fn tonus(args: &[&str]) -> std::process::Output {
+    std::process::Command::new(env!("CARGO_BIN_EXE_tonus"))
+        .args(args)
+        .output()
+        .expect("run tonus")
+}
+
+fn fit_json(file: &str) -> serde_json::Value {
+    let p = fixture(file);
+    let mut args = vec!["fit", p.to_str().unwrap()];
+    args.extend_from_slice(&SCREEN_A);
+    args.push("--json");
+    let o = tonus(&args);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{file}: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    serde_json::from_slice(&o.stdout).unwrap()
+}
+
+/// `tonus fit` on the FLAC gives the WAV's tension: the same samples give
+/// the same numbers (to rounding in the last digits, 1e-12 relative).
+#[test]
+fn fit_on_flac_equals_fit_on_wav() {
+    let w = fit_json("tap_screen_a_48k_s16.wav");
+    let f = fit_json("tap_screen_a_48k_s16.flac");
+    let t = |j: &serde_json::Value, k: &str| j["tension"][k].as_f64().unwrap();
+    let (tw, tf) = (t(&w, "value"), t(&f, "value"));
+    eprintln!("tension: WAV {tw} N/m, FLAC {tf} N/m");
+    // The demo screen is stretched to 20 N/cm = 2000 N/m.
+    assert!((tw - 2000.0).abs() < 5.0, "WAV tension {tw}");
+    assert!((tf / tw - 1.0).abs() < 1e-12, "FLAC {tf} vs WAV {tw}");
+    let (uw, uf) = (t(&w, "standard_uncertainty"), t(&f, "standard_uncertainty"));
+    assert!((uf / uw - 1.0).abs() < 1e-9, "u: FLAC {uf} vs WAV {uw}");
+    assert_eq!(
+        w["modes"].as_array().unwrap().len(),
+        f["modes"].as_array().unwrap().len()
+    );
+    assert_eq!(w["quality"]["grade"], f["quality"]["grade"]);
+}
+
+/// A one-line error with exit status 2 and no panic, holding `needle`.
+fn expect_one_line_error(args: &[&str], needle: &str) {
+    let o = tonus(args);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{args:?}: {err}");
+    assert!(!err.contains("panicked"), "{err}");
+    assert_eq!(err.trim_end().lines().count(), 1, "one line: {err}");
+    assert!(
+        err.contains(needle),
+        "{args:?}: expected '{needle}' in {err}"
+    );
+}
+
+fn fit_args(p: &std::path::Path) -> Vec<&str> {
+    let mut args = vec!["fit", p.to_str().unwrap()];
+    args.extend_from_slice(&SCREEN_A);
+    args
+}
+
+/// A FLAC file cut anywhere after its header is refused (its STREAMINFO
+/// declares 72 000 frames), never read as a shorter recording; cut inside
+/// the header, it is refused too.
+#[test]
+fn truncated_flac_is_a_one_line_error() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = std::fs::read(fixture("tap_screen_a_48k_s16.flac")).unwrap();
+    for keep in [whole.len() * 3 / 5, whole.len() - 1, 40] {
+        let p = dir.path().join(format!("cut{keep}.flac"));
+        std::fs::write(&p, &whole[..keep]).unwrap();
+        let needle = if keep > 1000 {
+            "declares 72000 frames"
+        } else {
+            "FLAC header cannot be read"
+        };
+        expect_one_line_error(&fit_args(&p), needle);
+        assert!(read_audio(&p, ChannelChoice::MixDown).is_err());
+    }
+}
+
+/// A FLAC file with one byte of its audio changed is refused (the frame's
+/// CRC or the stream's MD5 signature), never analysed.
+#[test]
+fn corrupt_flac_is_a_one_line_error() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut b = std::fs::read(fixture("tap_screen_a_48k_s16.flac")).unwrap();
+    let mid = b.len() / 2;
+    b[mid] ^= 0x5a;
+    let p = dir.path().join("corrupt.flac");
+    std::fs::write(&p, &b).unwrap();
+    expect_one_line_error(&fit_args(&p), "copy or export the recording again");
+}
+
+/// An AIFF file cut in its sound data is refused against its COMM chunk's
+/// frame count.
+#[test]
+fn truncated_aiff_is_a_one_line_error() {
+    let dir = tempfile::tempdir().unwrap();
+    let whole = std::fs::read(fixture("sine_440_48k_s16.aiff")).unwrap();
+    let p = dir.path().join("cut.aiff");
+    std::fs::write(&p, &whole[..whole.len() / 2]).unwrap();
+    expect_one_line_error(&["partials", p.to_str().unwrap()], "declares 48000 frames");
+}
+
+/// The format is told by the content: a FLAC named `.wav` reads as FLAC, a
+/// FLAC after an ID3v2 tag reads, and content of no known kind is refused
+/// with the bytes found and the formats read.
+#[test]
+fn format_is_told_by_content() {
+    let dir = tempfile::tempdir().unwrap();
+    let flac = std::fs::read(fixture("sine_1234p5_44k1_s24.flac")).unwrap();
+    let want = read("sine_1234p5_44k1_s24.wav", ChannelChoice::MixDown);
+
+    let misnamed = dir.path().join("really-flac.wav");
+    std::fs::write(&misnamed, &flac).unwrap();
+    let r = read_audio(&misnamed, ChannelChoice::MixDown).unwrap();
+    assert_eq!(r.samples, want.samples);
+
+    // ID3v2.4 header with a 20-byte tag body (syncsafe size 0 0 0 20).
+    let mut tagged = b"ID3\x04\x00\x00\x00\x00\x00\x14".to_vec();
+    tagged.extend_from_slice(&[0u8; 20]);
+    tagged.extend_from_slice(&flac);
+    let p = dir.path().join("tagged.flac");
+    std::fs::write(&p, &tagged).unwrap();
+    let r = read_audio(&p, ChannelChoice::MixDown).unwrap();
+    assert_eq!(r.samples, want.samples);
+
+    let ogg = dir.path().join("tap.ogg");
+    std::fs::write(&ogg, b"OggS\x00\x02 not audio tonus reads").unwrap();
+    expect_one_line_error(&["partials", ogg.to_str().unwrap()], "\"OggS");
+    expect_one_line_error(
+        &["partials", ogg.to_str().unwrap()],
+        "tonus reads WAV (RIFF or RF64: PCM or float), FLAC and AIFF/AIFF-C",
+    );
+}
+
+/// `inspect`'s folder scan takes `.flac`, `.aif`, `.aiff` and `.aifc` files
+/// beside `.wav` ones.
+#[test]
+fn folder_scan_takes_flac_and_aiff() {
+    let files = tonus::batch::expand_inputs(&[fixture("")]).unwrap();
+    let names: Vec<String> = files
+        .iter()
+        .map(|p| p.file_name().unwrap().to_string_lossy().into_owned())
+        .collect();
+    for want in [
+        "sine_440_48k_s16.wav",
+        "tap_screen_a_48k_s16.flac",
+        "sine_440_48k_s16.aiff",
+        "sine_997_48k_f32.aifc",
+    ] {
+        assert!(names.iter().any(|n| n == want), "{want} not in {names:?}");
+    }
+    assert!(!names
+        .iter()
+        .any(|n| n.ends_with(".sh") || n.ends_with(".md")));
 }
