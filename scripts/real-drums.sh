@@ -32,6 +32,12 @@
 #   loud_Hz  the strongest peak of that FFT
 #   sox_Hz   SoX's `stat` "Rough frequency" (zero crossings; noisy on drums,
 #            shown for comparison only)
+#   fund_Hz  tonus's own fundamental when it states that the model does not
+#            fit (the JSON's diagnosis; "-" for a sound or fair fit)
+#   closest  the model whose mode pattern came closest (isotropic or air)
+#   decided  "fit": sound or fair, with a measured (0,1) within 5 % of
+#            pitch_Hz; "statement": doubtful or unfit, with the statement of
+#            what was found; UNDECIDED otherwise
 #
 # Diameter guesses (areal density 0.26 kg/m2 for every head, a single-ply
 # 10 mil film head; real heads differ, and calfskin/goatskin more so):
@@ -109,12 +115,14 @@ short() {
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 
-fmt='%-28s %6s %7s %7s %-9s %9s %9s %9s %9s %9s %7s\n'
+fmt='%-28s %6s %7s %7s %-9s %9s %9s %9s %9s %9s %7s %9s %-10s %s\n'
 printf '# tonus %s, %s, timeout %ss, areal density %s\n' \
     "$("$tonus" --version 2>/dev/null | awk '{print $2}')" "$(date -u +%Y-%m-%dT%H:%MZ)" "$timeout_s" "$sigma"
-printf "$fmt" sample D wall_s exit grade T_N/m f01_Hz pitch_Hz f01/pitch loud_Hz sox_Hz
+printf "$fmt" sample D wall_s exit grade T_N/m f01_Hz pitch_Hz f01/pitch loud_Hz sox_Hz fund_Hz closest decided
 n=0
 failed=0
+undecided=0
+slow=0
 : >"$tmp/times"
 while IFS='|' read -r kit file diam; do
     if [ -n "${ONLY:-}" ] && ! [[ "$kit/$file" =~ $ONLY ]]; then
@@ -123,7 +131,7 @@ while IFS='|' read -r kit file diam; do
     f="$dir/$kit/$file"
     name="$(short "$kit")/$file"
     if [ ! -f "$f" ]; then
-        printf "$fmt" "$name" "$diam" - MISSING - - - - - - -
+        printf "$fmt" "$name" "$diam" - MISSING - - - - - - - - - -
         failed=$((failed + 1))
         continue
     fi
@@ -138,17 +146,17 @@ while IFS='|' read -r kit file diam; do
     soxhz=$(sox "$f" -n stat 2>&1 | awk '/Rough/ { print $3 }')
     if [ "$rc" -eq 124 ]; then
         exit_s=TIMEOUT
-        read -r grade tension f01 <<<"- - -"
+        read -r grade tension f01 fund closest <<<"- - - - -"
         failed=$((failed + 1))
     else
         exit_s=$rc
-        read -r grade tension f01 < <(python3 - "$tmp/out.json" "$tmp/err.txt" <<'PY'
+        read -r grade tension f01 fund closest < <(python3 - "$tmp/out.json" "$tmp/err.txt" <<'PY'
 import json, sys
 try:
     d = json.load(open(sys.argv[1]))
 except Exception:
     err = open(sys.argv[2]).read().strip().replace(" ", "_")
-    print("error:" + err[:60].split(";")[0][-40:], "-", "-")
+    print("error:" + err[:60].split(";")[0][-40:], "-", "-", "-", "-")
     sys.exit()
 grade = d["quality"]["grade"]
 t = d["tension"]["value"]
@@ -159,17 +167,38 @@ if f01 is not None:
 else:
     p = next((m["predicted_hz"] for m in d.get("missing_modes") or [] if m.get("labels") == "(0,1)"), None)
     f01s = "%.1fp" % p if p is not None else "-"
-print(grade, "%.0f" % t, f01s)
+diag = d.get("diagnosis")
+fund = "%.1f" % diag["fundamental_hz"] if diag else "-"
+closest = diag["closest_model"] if diag and diag.get("closest_model") else "-"
+print(grade, "%.0f" % t, f01s, fund, closest)
 PY
 )
         [ "$rc" -eq 2 ] && failed=$((failed + 1))
     fi
     ratio=$(awk -v a="${f01%p}" -v b="$pitch" 'BEGIN { if (a + 0 > 0 && b + 0 > 0) printf "%.2f", a / b; else print "-" }')
-    printf "$fmt" "$name" "$diam" "$wall" "$exit_s" "$grade" "$tension" "$f01" "$pitch" "$ratio" "$loud" "$soxhz"
+    # Decided honestly: a sound or fair fit whose measured (0,1) is within
+    # 5 % of the outside pitch, or a doubtful/unfit grade with the statement
+    # of what was found (fundamental, overtones, closest model).
+    case "$grade" in
+    sound | fair)
+        if [[ "$f01" != *p ]] && awk -v r="$ratio" 'BEGIN { exit !(r + 0 > 0.95 && r + 0 < 1.05) }'; then
+            decided="fit"
+        else
+            decided="UNDECIDED"
+        fi
+        ;;
+    doubtful | unfit)
+        if [ "$closest" != "-" ]; then decided="statement"; else decided="UNDECIDED"; fi
+        ;;
+    *) decided="UNDECIDED" ;;
+    esac
+    [ "$decided" = UNDECIDED ] && undecided=$((undecided + 1))
+    awk -v w="$wall" 'BEGIN { exit !(w + 0 > 0.5) }' && slow=$((slow + 1))
+    printf "$fmt" "$name" "$diam" "$wall" "$exit_s" "$grade" "$tension" "$f01" "$pitch" "$ratio" "$loud" "$soxhz" "$fund" "$closest" "$decided"
     echo "$wall $name" >>"$tmp/times"
 done < <(samples)
 
 echo
-echo "# $n samples run, $failed failed (error exit 2, TIMEOUT or missing)."
+echo "# $n samples run, $failed failed (error exit 2, TIMEOUT or missing), $undecided not decided honestly, $slow over 0.5 s."
 echo "# Slowest runs (wall s):"
 sort -rn "$tmp/times" | head -8 | sed 's/^/#   /'

@@ -17,6 +17,7 @@ pub mod cli;
 pub mod commands;
 pub mod crlb;
 pub mod decision;
+pub mod diagnosis;
 pub mod error;
 pub mod estimator;
 pub mod evenness;

@@ -141,6 +141,9 @@ pub struct Measurement {
     /// Uneven tension from the resolved split pairs (circle, or square
     /// panel), when any pair was resolved.
     pub evenness: Option<crate::evenness::Evenness>,
+    /// What the recording shows when the fit is doubtful or unfit: the
+    /// fundamental, the overtone ratios, the closest model.
+    pub diagnosis: Option<crate::diagnosis::Diagnosis>,
 }
 
 /// FFT-resolved split pairs: for each line of two or more modes, the
@@ -406,6 +409,16 @@ fn matching_factor(panel: &Panel, f_ratio: f64) -> f64 {
 /// any mesh or film stretched for use; a best ratio at either end of the
 /// grid is reported as a search limit.
 pub const BIAXIAL_MAX_RATIO: f64 = 3.0;
+/// A geometric grid of tension (or aspect) ratios for [`biaxial_search`]:
+/// from 1/`max_ratio` to `max_ratio` in factors of `step`, with the prior
+/// probability `prior_at_one` for the ratio 1 (None: every ratio alike).
+#[derive(Debug, Clone, Copy)]
+struct RatioGrid {
+    max_ratio: f64,
+    step: f64,
+    prior_at_one: Option<f64>,
+}
+
 /// Largest ratio (Lx/Lx_entered)⁻² the isotropic rectangle's labelling
 /// tries, and its inverse: a side entered up to about 8 % wrong still
 /// labels right (and the aspect check then says so).
@@ -440,10 +453,13 @@ fn biaxial_search(
     ly: f64,
     f_ratio: f64,
     band: (f64, f64),
-    max_ratio: f64,
-    step: f64,
-    prior_at_one: Option<f64>,
+    grid: RatioGrid,
 ) -> (Vec<ModeLine>, Option<Matching>, bool) {
+    let RatioGrid {
+        max_ratio,
+        step,
+        prior_at_one,
+    } = grid;
     let steps = (max_ratio.ln() / step.ln()).ceil() as i32;
     // The log prior of each grid ratio: uniform, or (for the aspect
     // search) probability p₀ that the entered sides are right and the rest
@@ -759,9 +775,11 @@ pub fn measure_with(
                 height.0,
                 f_hi / f_lo,
                 band,
-                BIAXIAL_MAX_RATIO,
-                BIAXIAL_RATIO_STEP,
-                None,
+                RatioGrid {
+                    max_ratio: BIAXIAL_MAX_RATIO,
+                    step: BIAXIAL_RATIO_STEP,
+                    prior_at_one: None,
+                },
             );
             if edge {
                 warnings.push(Warning::SearchLimit {
@@ -798,9 +816,11 @@ pub fn measure_with(
                 height.0,
                 f_hi / f_lo,
                 band,
-                ASPECT_SEARCH_MAX_RATIO,
-                ASPECT_SEARCH_STEP,
-                Some(ENTERED_SIDES_PRIOR),
+                RatioGrid {
+                    max_ratio: ASPECT_SEARCH_MAX_RATIO,
+                    step: ASPECT_SEARCH_STEP,
+                    prior_at_one: Some(ENTERED_SIDES_PRIOR),
+                },
             );
             let entered: Vec<ModeLine> = l
                 .into_iter()
@@ -1350,6 +1370,44 @@ pub fn measure_with(
             .map(|(rank, &i)| (parts[i].frequency_hz, rank == 0))
             .collect()
     };
+    // Nothing in a membrane sounds below its lowest mode: a fundamental
+    // (the lowest partial near the strongest) well below the fitted lowest
+    // mode says the labelling or the model is wrong.
+    if let (Some(f), Some(f0)) = (
+        &fit_result,
+        crate::diagnosis::fundamental(&analysis.partials),
+    ) {
+        let lowest = lines
+            .iter()
+            .map(|l| (fit::predicted_hz(f, l.factor, l.labels[0]), l))
+            .min_by(|a, b| a.0.total_cmp(&b.0));
+        if let Some((f_low, line)) = lowest {
+            // The lowest mode has no nodal line inside the membrane, so
+            // every tap and pickup off the edge sound it: a fit whose
+            // lowest mode has no partial, with the fundamental far above
+            // it, has the wrong wave speed.
+            let lowest_matched = modes.iter().any(|r| r.labels == line.label_text());
+            let above = fit::CENTS_PER_LN * (f0 / f_low).ln();
+            if !lowest_matched && above > 200.0 && f_low >= opts.analysis.min_frequency_hz {
+                warnings.push(Warning::ModelMisfit {
+                    detail: format!(
+                        "the fitted lowest mode {} at {f_low:.1} Hz, which any tap off the edge sounds, has no partial, and the fundamental is at {f0:.1} Hz; the labelling or the model is wrong",
+                        line.label_text()
+                    ),
+                });
+            }
+            let below = fit::CENTS_PER_LN * (f_low / f0).ln();
+            if below > matching::MATCH_GATE_CENTS {
+                warnings.push(Warning::ModelMisfit {
+                    detail: format!(
+                        "the fundamental at {f0:.1} Hz (the lowest partial within {} dB of the strongest) lies below the fitted lowest mode {} at {f_low:.1} Hz, where a membrane has nothing to sound; the labelling or the model is wrong",
+                        crate::diagnosis::FUNDAMENTAL_WITHIN_DB,
+                        line.label_text()
+                    ),
+                });
+            }
+        }
+    }
     let q = quality::grade(
         fit_result.as_ref(),
         matching.as_ref(),
@@ -1364,9 +1422,19 @@ pub fn measure_with(
         .map(|r| r.labels.clone())
         .collect();
     let evenness = evenness_of(panel, &modes);
+    let diagnosis = if q.grade >= quality::Grade::Doubtful {
+        crate::diagnosis::diagnose(
+            &analysis.partials,
+            &panel.shape,
+            panel.areal_density.map(|s| s.0),
+        )
+    } else {
+        None
+    };
     Ok(Measurement {
         panel: panel.clone(),
         evenness,
+        diagnosis,
         analysis,
         lines,
         matching,

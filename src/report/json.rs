@@ -15,6 +15,9 @@
 //! - `unmatched_partials`: [{`frequency_hz`, `level_db`, `snr_db`, `t60_s`}]
 //! - `hum`: [{`frequency_hz`, `mains_hz`, `harmonic`}]
 //! - `rms_residual_cents`, `quality` {`grade`, `reasons`}
+//! - `diagnosis` (when the grade is doubtful or unfit, else null):
+//!   {`fundamental_hz`, `overtone_ratios`, `models`: [{`model`, `rms_cents`,
+//!   `nearest_ratios`}] closest first, `closest_model`, `statement`}
 //! - `fit`: {`modes_used`, `dof`, `iterations`, `stop_reason`, `uncertainty_method`}
 //! - `matching`: {`hypotheses`, `ambiguous`, `rival_wave_speed_m_per_s`}
 //! - `budget` (GUM): {`tension_n_per_m`, `rows`: [{`source`, `estimate`, `standard_uncertainty`, `sensitivity`, `contribution_n_per_m`}], `combined_standard_uncertainty_n_per_m`, `coverage_factor`, `expanded_uncertainty_n_per_m`} or null without areal density
@@ -172,6 +175,13 @@ pub fn fit_record(file: &Path, m: &Measurement, unit: TensionUnit) -> Value {
         })).collect::<Vec<_>>(),
         "rms_residual_cents": fit.map(|f| f.rms_residual_cents),
         "quality": { "grade": m.quality.grade.name(), "reasons": m.quality.reasons },
+        "diagnosis": m.diagnosis.as_ref().map(|d| json!({
+            "fundamental_hz": d.fundamental_hz,
+            "overtone_ratios": d.overtone_ratios,
+            "models": d.models,
+            "closest_model": d.closest(),
+            "statement": d.sentence(),
+        })),
         "fit": fit.map(|f| json!({
             "modes_used": f.n_used, "dof": f.dof, "iterations": f.iterations,
             "stop_reason": f.stop_reason, "uncertainty_method": f.uncertainty_method,

@@ -95,6 +95,9 @@ pub fn fit_report(
             format!(": {}", m.quality.reasons.join("; "))
         }
     );
+    if let Some(d) = &m.diagnosis {
+        let _ = writeln!(s, "**Diagnosis**: {}\n", d.sentence());
+    }
     if let Some(b) = &m.biaxial {
         let k = unit.newtons_per_meter();
         let _ = writeln!(s, "## Tension along the two axes\n");

@@ -244,6 +244,9 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
             format!(": {}", m.quality.reasons.join("; "))
         }
     );
+    if let Some(d) = &m.diagnosis {
+        let _ = writeln!(s, "diagnosis    {}", d.sentence());
+    }
     if !m.modes.is_empty() {
         let _ = writeln!(s);
         let _ = writeln!(
