@@ -414,6 +414,44 @@ pub fn score_case_scaled(case: &Path, with_tap: bool, scale: (f64, f64)) -> Resu
     Ok(score)
 }
 
+/// The `tonus fit` arguments (after the recording) that a case's inputs
+/// stand for: what a user would type, for timing the binary on the case.
+///
+/// # Errors
+/// A broken `truth.json`.
+pub fn fit_args(case: &Path) -> Result<Vec<String>> {
+    let truth_path = case.join("truth.json");
+    let text = std::fs::read_to_string(&truth_path).map_err(|e| TonusError::Io {
+        path: truth_path.clone(),
+        reason: e.to_string(),
+    })?;
+    let t: Value = serde_json::from_str(&text)
+        .map_err(|e| corpus_error(&truth_path, &format!("invalid JSON ({e})")))?;
+    let inputs = t
+        .get("inputs")
+        .ok_or_else(|| corpus_error(&truth_path, "no inputs"))?;
+    let mut out = Vec::new();
+    if inputs.get("shape").and_then(Value::as_str) == Some("circle") {
+        if let Some(d) = num(inputs, "diameter_m") {
+            out.extend(["--diameter".to_string(), format!("{d}m")]);
+        }
+    } else {
+        for (flag, key) in [("--width", "lx_m"), ("--height", "ly_m")] {
+            if let Some(v) = num(inputs, key) {
+                out.extend([flag.to_string(), format!("{v}m")]);
+            }
+        }
+    }
+    if let Some(s) = num(inputs, "sigma_kg_m2") {
+        out.extend(["--areal-density".to_string(), format!("{s}kg/m2")]);
+    }
+    match inputs.get("model").and_then(Value::as_str) {
+        Some("iso") | None => {}
+        Some(m) => out.extend(["--model".to_string(), m.to_string()]),
+    }
+    Ok(out)
+}
+
 /// "(1,2)/(2,1)" → [(1,2), (2,1)].
 fn parse_labels(text: &str) -> Vec<(u32, u32)> {
     text.split('/')
