@@ -317,10 +317,13 @@ fn hum_family(
     background: Option<&spectrum::Background>,
 ) -> Option<(f64, u32)> {
     let sustained = match (background, p.decay_rate_db_per_s) {
-        (Some(b), _) => {
+        (Some(b), rate) => {
             let line = b.level_near(p.frequency_hz);
-            line >= p.level_db - STEADY_LEVEL_DB
-                && line >= b.noise_level_near(p.frequency_hz) + STEADY_ABOVE_NOISE_DB
+            (line >= p.level_db - STEADY_LEVEL_DB
+                && line >= b.noise_level_near(p.frequency_hz) + STEADY_ABOVE_NOISE_DB)
+                // A background too short to resolve a low line still
+                // leaves its steadiness to say so.
+                || rate.is_some_and(|r| r.abs() < SUSTAINED_DECAY_DB_PER_S)
         }
         (None, Some(r)) => r < SUSTAINED_DECAY_DB_PER_S,
         (None, None) => false,
@@ -618,6 +621,18 @@ fn measure_decays(
             pts.push(((j * hop + frame / 2) as f64 / sr, v));
         }
         if pts.len() < 3 {
+            // The strongest frame came late: a steady line (hum, a machine)
+            // whose level wanders, not a decay. Its slope over the whole
+            // span says so (near zero), where a tap's partial would have
+            // peaked at the start.
+            if db.len() >= 3 && start * 2 >= db.len() {
+                let all: Vec<(f64, f64)> = db
+                    .iter()
+                    .enumerate()
+                    .map(|(j, &v)| (((j * hop + frame / 2) as f64) / sr, v))
+                    .collect();
+                part.decay_rate_db_per_s = Some(-line_fit(&all).0);
+            }
             continue;
         }
         let (slope, _) = line_fit(&pts);
