@@ -55,6 +55,28 @@ pub const SPURIOUS_FRACTION: f64 = 0.2;
 pub const AMBIGUITY_MARGIN: f64 = 2.0;
 /// Partials tried as the anchor of a hypothesis (strongest and lowest).
 pub const ANCHOR_PARTIALS: usize = 6;
+/// A partial seeds hypotheses as one of the lowest only when it stands
+/// within this many dB of the strongest.
+pub const ANCHOR_RANGE_DB: f64 = 30.0;
+
+/// The lowest frequency a hypothesis is anchored on: the lowest partial
+/// within [`ANCHOR_RANGE_DB`] of the strongest. The lines a search needs
+/// reach from the lowest lines at this frequency up to the highest
+/// partial; a hypothesis seeded on one of the strongest partials lower
+/// still (more than 30 dB below the top, which the strongest few rarely
+/// are) may find too few lines and is then not scored.
+pub fn anchor_floor_hz(partials: &[Partial]) -> Option<f64> {
+    let top = partials
+        .iter()
+        .map(|p| p.level_db)
+        .fold(f64::NEG_INFINITY, f64::max);
+    partials
+        .iter()
+        .filter(|p| p.level_db >= top - ANCHOR_RANGE_DB)
+        .map(|p| p.frequency_hz)
+        .min_by(f64::total_cmp)
+}
+
 /// Lines tried as the anchor of a hypothesis (lowest).
 pub const ANCHOR_LINES: usize = 10;
 /// Coupling below which a line is expected to be weak or absent.
@@ -165,7 +187,16 @@ pub fn match_modes_in(
             .total_cmp(&partials[b].frequency_hz)
     });
     let mut anchors: Vec<usize> = by_level.iter().take(anchor_partials).copied().collect();
-    for &i in by_freq.iter().take(anchor_partials) {
+    // The lowest partials that stand within ANCHOR_RANGE_DB of the
+    // strongest ([`anchor_floor_hz`]): a weak low peak is labelled if it
+    // is a mode, but seeding hypotheses on it (as the fundamental of a far
+    // slower wave) would need far more lines.
+    let top_level = by_level.first().map_or(0.0, |&i| partials[i].level_db);
+    for &i in by_freq
+        .iter()
+        .filter(|&&i| partials[i].level_db >= top_level - ANCHOR_RANGE_DB)
+        .take(anchor_partials)
+    {
         if !anchors.contains(&i) {
             anchors.push(i);
         }
@@ -221,17 +252,6 @@ pub fn match_modes_in(
     }
     let hypotheses = results.len();
     results.sort_by(|a, b| b.score.total_cmp(&a.score));
-    if std::env::var_os("TONUS_DEBUG_MATCH").is_some() {
-        for r in results.iter().take(8) {
-            eprintln!(
-                "c {:.3} score {:.2} assigned {} missing {}",
-                r.wave_speed_m_per_s,
-                r.score,
-                r.assignments.len(),
-                r.missing.len()
-            );
-        }
-    }
     let mut best = results.first()?.clone();
     best.hypotheses = hypotheses;
     add_alternatives(
@@ -604,12 +624,45 @@ pub const SCATTER_SCALES_CENTS: [f64; 3] = [1.5, 5.0, MATCH_SCATTER_CENTS];
 /// so a labelling whose partials sit on its lines beats one that merely
 /// comes near them.
 pub fn scatter_density(r: f64) -> f64 {
-    let k = SCATTER_SCALES_CENTS.len() as f64;
-    SCATTER_SCALES_CENTS
-        .iter()
-        .map(|&s| (-r * r / (2.0 * s * s)).exp() / (s * (2.0 * std::f64::consts::PI).sqrt()))
-        .sum::<f64>()
-        / k
+    // exp(−r²/2s²) for s = 15, 5 and 1.5 cents is e, e⁹ and e¹⁰⁰ with
+    // e = exp(−r²/450): one exponential where three would do the same.
+    const NORM: f64 = 0.398_942_280_401_432_7; // 1/√(2π)
+    let e15 = (-r * r / 450.0).exp();
+    let mut sum = e15 / 15.0;
+    if r.abs() < 40.0 {
+        // Beyond 40 cents the narrower terms add less than 2e-12 of the
+        // broad one (3·e⁸ with e = exp(−1600/450)).
+        let e5 = e15.powi(9);
+        sum += e5 / 5.0 + e5.powi(11) * e15 / 1.5;
+    }
+    sum * NORM / 3.0
+}
+
+#[cfg(test)]
+mod scatter_tests {
+    use super::*;
+
+    /// The fast form equals the plain mean of the three normal densities
+    /// to 1e-11 relative (rounding, and the narrow terms dropped beyond
+    /// 40 cents).
+    #[test]
+    fn scatter_density_equals_the_mean_of_three_normals() {
+        for i in 0..400 {
+            let r = -60.0 + 0.3 * i as f64;
+            let plain = SCATTER_SCALES_CENTS
+                .iter()
+                .map(|&s| {
+                    (-r * r / (2.0 * s * s)).exp() / (s * (2.0 * std::f64::consts::PI).sqrt())
+                })
+                .sum::<f64>()
+                / 3.0;
+            let fast = scatter_density(r);
+            assert!(
+                (fast - plain).abs() <= 1e-11 * plain,
+                "r {r}: {fast} vs {plain}"
+            );
+        }
+    }
 }
 
 /// Probability that a line with full coupling shows a partial, in the

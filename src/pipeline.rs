@@ -409,6 +409,45 @@ fn matching_factor(panel: &Panel, f_ratio: f64) -> f64 {
 /// any mesh or film stretched for use; a best ratio at either end of the
 /// grid is reported as a search limit.
 pub const BIAXIAL_MAX_RATIO: f64 = 3.0;
+
+/// Residual rms (cents, over every assigned partial) under which the
+/// entered sides' labelling is taken without the aspect search: the
+/// matcher's middle scatter scale ([`matching::SCATTER_SCALES_CENTS`]). A
+/// side entered 3 % wrong moves the pure-m or pure-n modes by about 25
+/// cents, and a labelling forced onto the wrong sides scatters by more, so
+/// either sends the recording to the search; a panel whose modes sit on
+/// the entered sides' lines (the usual case on a line, where the frame is
+/// known) is spared its cost (a grid of 23 aspect ratios, about 40 ms).
+pub const ASPECT_SEARCH_TRIGGER_CENTS: f64 = 5.0;
+
+/// Whether the matcher's labelling `m` on the entered sides (`lines`,
+/// `sides` = (Lx, Ly)) can stand without the aspect search: at least
+/// [`MIN_ISOLATED_MODES`] assigned partials within
+/// [`ASPECT_SEARCH_TRIGGER_CENTS`] rms, no rival labelling, and at most one silent line
+/// in the band for every four assigned (a labelling forced onto wrong sides can sit on its lines by
+/// taking a far lower wave speed, whose dense lines catch every partial
+/// and leave many low lines silent).
+fn entered_sides_suffice(
+    m: &Matching,
+    parts: &[crate::partials::Partial],
+    lines: &[ModeLine],
+    sides: (f64, f64),
+) -> bool {
+    let n = m.assignments.len();
+    if n < MIN_ISOLATED_MODES || m.is_ambiguous() || m.missing.len() * 4 > n {
+        return false;
+    }
+    let rms = (m
+        .assignments
+        .iter()
+        .map(|a| a.residual_cents * a.residual_cents)
+        .sum::<f64>()
+        / n as f64)
+        .sqrt();
+    let _ = (parts, lines, sides);
+    rms <= ASPECT_SEARCH_TRIGGER_CENTS
+}
+
 /// A geometric grid of tension (or aspect) ratios for [`biaxial_search`]:
 /// from 1/`max_ratio` to `max_ratio` in factors of `step`, with the prior
 /// probability `prior_at_one` for the ratio 1 (None: every ratio alike).
@@ -494,15 +533,6 @@ fn biaxial_search(
             let lines = lines_at(k);
             let ens = ensemble_for(panel, &lines);
             let m = matching::match_modes_in(parts, &lines, band, (ap, al), ens.as_deref())?;
-            if std::env::var_os("TONUS_DEBUG_SURVEY").is_some() {
-                eprintln!(
-                    "survey k {k} c {:.3} score {:.2} prior {:.2} n {}",
-                    m.wave_speed_m_per_s,
-                    m.score,
-                    log_prior(k),
-                    m.assignments.len()
-                );
-            }
             Some((k, m.score + log_prior(k)))
         })
         .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.abs().cmp(&a.0.abs())));
@@ -747,6 +777,9 @@ pub fn measure_with(
     let (f_lo, f_hi) = parts.iter().fold((f64::INFINITY, 0.0f64), |(lo, hi), p| {
         (lo.min(p.frequency_hz), hi.max(p.frequency_hz))
     });
+    // Lines are needed from the lowest anchored partial up (a weak peak
+    // below it is labelled if a line is there, but seeds no hypothesis).
+    let f_lo = matching::anchor_floor_hz(parts).unwrap_or(f_lo);
     let lines = if parts.is_empty() {
         Vec::new()
     } else {
@@ -809,32 +842,42 @@ pub fn measure_with(
         (FitModel::Isotropic, Shape::Rectangle { width, height })
             if !parts.is_empty() && opts.calibration.is_none() =>
         {
-            let (l, m, _) = biaxial_search(
-                parts,
-                panel,
-                width.0,
-                height.0,
-                f_hi / f_lo,
-                band,
-                RatioGrid {
-                    max_ratio: ASPECT_SEARCH_MAX_RATIO,
-                    step: ASPECT_SEARCH_STEP,
-                    prior_at_one: Some(ENTERED_SIDES_PRIOR),
-                },
-            );
-            let entered: Vec<ModeLine> = l
-                .into_iter()
-                .map(|line| {
-                    let (mm, nn) = line.labels[0];
-                    ModeLine {
-                        factor: crate::membrane::rect_mode_frequency_hz(
-                            width.0, height.0, 1.0, mm, nn,
-                        ),
-                        ..line
-                    }
-                })
-                .collect();
-            (entered, m)
+            let ens = ensemble_for(panel, &lines);
+            let full = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
+            let m0 = matching::match_modes_in(parts, &lines, band, full, ens.as_deref());
+            if m0
+                .as_ref()
+                .is_some_and(|m| entered_sides_suffice(m, parts, &lines, (width.0, height.0)))
+            {
+                (lines, m0)
+            } else {
+                let (l, m, _) = biaxial_search(
+                    parts,
+                    panel,
+                    width.0,
+                    height.0,
+                    f_hi / f_lo,
+                    band,
+                    RatioGrid {
+                        max_ratio: ASPECT_SEARCH_MAX_RATIO,
+                        step: ASPECT_SEARCH_STEP,
+                        prior_at_one: Some(ENTERED_SIDES_PRIOR),
+                    },
+                );
+                let entered: Vec<ModeLine> = l
+                    .into_iter()
+                    .map(|line| {
+                        let (mm, nn) = line.labels[0];
+                        ModeLine {
+                            factor: crate::membrane::rect_mode_frequency_hz(
+                                width.0, height.0, 1.0, mm, nn,
+                            ),
+                            ..line
+                        }
+                    })
+                    .collect();
+                (entered, m)
+            }
         }
         _ => {
             let ens = ensemble_for(panel, &lines);
