@@ -424,7 +424,15 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
         for k in keep.iter_mut().take(cfg.max_partials) {
             *k = true;
         }
-        for &i in by_freq.iter().take(LOW_PARTIALS_KEPT) {
+        // Only those within the matcher's anchor range of the strongest:
+        // a mode a person sees beside the loud ones, not the noise floor's
+        // ripple under a dense spectrum.
+        let top = cands.first().map_or(0.0, |p| p.level_db);
+        for &i in by_freq
+            .iter()
+            .filter(|&&i| cands[i].level_db >= top - crate::matching::ANCHOR_RANGE_DB)
+            .take(LOW_PARTIALS_KEPT)
+        {
             keep[i] = true;
         }
         let mut i = 0;

@@ -423,8 +423,11 @@ pub const ASPECT_SEARCH_TRIGGER_CENTS: f64 = 5.0;
 /// Whether the matcher's labelling `m` on the entered sides (`lines`,
 /// `sides` = (Lx, Ly)) can stand without the aspect search: at least
 /// [`MIN_ISOLATED_MODES`] assigned partials within
-/// [`ASPECT_SEARCH_TRIGGER_CENTS`] rms, no rival labelling, and at most one silent line
-/// in the band for every four assigned (a labelling forced onto wrong sides can sit on its lines by
+/// [`ASPECT_SEARCH_TRIGGER_CENTS`] rms, no rival labelling, no
+/// significant disagreement with the entered aspect ratio beyond
+/// [`crate::aspect::DOUBTFUL_ASPECT_FRACTION`], the lowest line (when in
+/// the band `band_low_hz` up) assigned, and at most one
+/// silent line in the band for every four assigned (a labelling forced onto wrong sides can sit on its lines by
 /// taking a far lower wave speed, whose dense lines catch every partial
 /// and leave many low lines silent).
 fn entered_sides_suffice(
@@ -432,6 +435,7 @@ fn entered_sides_suffice(
     parts: &[crate::partials::Partial],
     lines: &[ModeLine],
     sides: (f64, f64),
+    band_low_hz: f64,
 ) -> bool {
     let n = m.assignments.len();
     if n < MIN_ISOLATED_MODES || m.is_ambiguous() || m.missing.len() * 4 > n {
@@ -444,8 +448,31 @@ fn entered_sides_suffice(
         .sum::<f64>()
         / n as f64)
         .sqrt();
-    let _ = (parts, lines, sides);
-    rms <= ASPECT_SEARCH_TRIGGER_CENTS
+    if rms > ASPECT_SEARCH_TRIGGER_CENTS {
+        return false;
+    }
+    // The lowest mode sounds wherever the panel is tapped (no nodal line
+    // inside); a labelling that leaves it silent took the wrong wave speed.
+    let lowest_in_band = lines
+        .first()
+        .is_some_and(|l| m.wave_speed_m_per_s * l.factor >= band_low_hz);
+    if lowest_in_band && !m.assignments.iter().any(|a| a.line == 0) {
+        return false;
+    }
+    // And the modes, outliers and all, show no significant disagreement
+    // with the entered aspect ratio ([`crate::aspect::check`]): a labelling
+    // forced onto a wrong side can scatter little and still contradict it.
+    let obs: Vec<Observation> = m
+        .assignments
+        .iter()
+        .map(|a| Observation {
+            frequency_hz: parts[a.partial].frequency_hz,
+            factor: lines[a.line].factor,
+            mode: lines[a.line].labels[0],
+        })
+        .collect();
+    crate::aspect::check(&obs, sides.0, sides.1)
+        .is_none_or(|c| c.warning(sides.0, sides.1).is_none())
 }
 
 /// A geometric grid of tension (or aspect) ratios for [`biaxial_search`]:
@@ -845,10 +872,9 @@ pub fn measure_with(
             let ens = ensemble_for(panel, &lines);
             let full = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
             let m0 = matching::match_modes_in(parts, &lines, band, full, ens.as_deref());
-            if m0
-                .as_ref()
-                .is_some_and(|m| entered_sides_suffice(m, parts, &lines, (width.0, height.0)))
-            {
+            if m0.as_ref().is_some_and(|m| {
+                entered_sides_suffice(m, parts, &lines, (width.0, height.0), band.0)
+            }) {
                 (lines, m0)
             } else {
                 let (l, m, _) = biaxial_search(
