@@ -122,3 +122,50 @@ impl AspectCheck {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::membrane::rect_mode_frequency_hz;
+
+    fn obs(lx_true: f64, ly_true: f64, lx: f64, ly: f64) -> Vec<Observation> {
+        let mut v = Vec::new();
+        for m in 1..=4 {
+            for n in 1..=3 {
+                v.push(Observation {
+                    frequency_hz: rect_mode_frequency_hz(lx_true, ly_true, 100.0, m, n),
+                    factor: rect_mode_frequency_hz(lx, ly, 1.0, m, n),
+                    mode: (m, n),
+                });
+            }
+        }
+        v
+    }
+
+    #[test]
+    fn right_sides_pass_and_a_wrong_height_is_named() {
+        let ok = check(&obs(0.5, 0.4, 0.5, 0.4), 0.5, 0.4).unwrap();
+        assert_eq!(ok.added_u_rel, 0.0);
+        assert!(ok.warning(0.5, 0.4).is_none());
+        // Height entered 4 % short: the effective height is the true one
+        // (width as entered), and the warning names it.
+        let bad = check(&obs(0.5, 0.4, 0.5, 0.384), 0.5, 0.384).unwrap();
+        assert!((bad.effective_height.value / 0.4 - 1.0).abs() < 1e-6);
+        assert!(bad.added_u_rel > 0.0);
+        let w = bad.warning(0.5, 0.384).unwrap().to_string();
+        assert!(w.contains("400.0 mm") && w.contains("384.0 mm"), "{w}");
+        // The added term covers the tension error: with c = 100 m/s true,
+        // the isotropic c over these modes sits within 2u of it.
+        let c_iso = (obs(0.5, 0.4, 0.5, 0.384)
+            .iter()
+            .map(|o| (o.frequency_hz / o.factor).ln())
+            .sum::<f64>()
+            / 12.0)
+            .exp();
+        assert!(
+            (c_iso / 100.0 - 1.0).abs() < 2.0 * bad.added_u_rel,
+            "{c_iso} {}",
+            bad.added_u_rel
+        );
+    }
+}

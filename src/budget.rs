@@ -103,7 +103,7 @@ fn tension_for(shape: &Shape, sigma: f64, air: bool, freqs: &[f64], modes: &[(u3
 }
 
 /// Sensitivity coefficients cᵢ = ∂f/∂xᵢ at x by central differences with
-/// the relative step [`STEP_REL`] (GUM §5.1.3, note 2, allows numerical
+/// the relative step `STEP_REL` (GUM §5.1.3, note 2, allows numerical
 /// derivatives). The truncation error is O(h²), about 1e-10 relative.
 pub fn sensitivities(f: &dyn Fn(&[f64]) -> f64, x: &[f64]) -> Vec<f64> {
     (0..x.len())

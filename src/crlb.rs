@@ -1,10 +1,10 @@
 //! Cramér–Rao lower bounds (CRLB) on the frequency and decay rate of one
 //! exponentially damped sinusoid in white Gaussian noise.
 //!
-//! Conventions: the signal is x[n] = A·e^(−α·n/fs)·cos(2π·f·n/fs + φ) + w[n],
+//! Conventions: the signal is x\[n\] = A·e^(−α·n/fs)·cos(2π·f·n/fs + φ) + w\[n\],
 //! n = 0..N−1, with A the initial amplitude (full-scale units), α the
 //! amplitude decay rate in 1/s (T60 = 3·ln 10/α), f in Hz, φ in rad, and
-//! w[n] real white Gaussian noise of variance σ² per sample. Internally
+//! w\[n\] real white Gaussian noise of variance σ² per sample. Internally
 //! time is counted in samples: a = α/fs (1/sample), ω = 2π·f/fs
 //! (rad/sample). Every bound is returned as a standard deviation (the
 //! square root of the variance bound) in the unit of the parameter.
@@ -144,7 +144,7 @@ fn frequency_variance_rad(amplitude: f64, a: f64, n: usize, noise_variance: f64)
 }
 
 /// The exact Fisher information matrix of the real model
-/// s[n] = A·e^(−a·n)·cos(ω·n + φ) for θ = (A, a, ω, φ), with a in
+/// s\[n\] = A·e^(−a·n)·cos(ω·n + φ) for θ = (A, a, ω, φ), with a in
 /// 1/sample and ω in rad/sample:
 /// J_ij = (1/σ²)·Σ_{n<N} ∂s/∂θ_i·∂s/∂θ_j (Kay 1993, eq. (3.33)), where
 /// ∂s/∂A = e^(−an)·cos ψ, ∂s/∂a = −n·A·e^(−an)·cos ψ,

@@ -4,7 +4,7 @@
 //! sinusoids.
 //!
 //! Conventions:
-//! - Model: x[n] = Σ_i A_i·e^(−α_i·t)·cos(2π f_i t + φ_i) + w[n], t = n/fs,
+//! - Model: x\[n\] = Σ_i A_i·e^(−α_i·t)·cos(2π f_i t + φ_i) + w\[n\], t = n/fs,
 //!   with t = 0 at the first sample of the span (the tap onset), A_i the
 //!   initial amplitude in the unit of the samples, α_i the amplitude decay
 //!   rate in 1/s, φ_i in rad, w white Gaussian noise of variance σ² per
@@ -848,7 +848,7 @@ struct PencilPoles {
 pub struct PencilResult {
     /// Poles z_i (per sample of the input).
     pub poles: Vec<C64>,
-    /// Complex amplitudes h_i of y[m] ≈ Σ h_i·z_i^m.
+    /// Complex amplitudes h_i of y\[m\] ≈ Σ h_i·z_i^m.
     pub amplitudes: Vec<C64>,
     /// Singular values of the data matrix, descending.
     pub singular_values: Vec<f64>,

@@ -714,6 +714,23 @@ pub fn pattern_log_likelihood(ensemble: &[Vec<f64>], low: &[(usize, bool)]) -> f
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn a_silent_family_is_likely_when_some_tap_explains_it() {
+        // Two tap points: one couples every line, one silences lines 1
+        // and 3. Lines 1 and 3 silent is likely (the second point explains
+        // it); lines 0 and 2 silent with 1 and 3 sounding is not.
+        let ens = vec![vec![1.0, 1.0, 1.0, 1.0], vec![1.0, 0.0, 1.0, 0.0]];
+        let family = pattern_log_likelihood(&ens, &[(0, true), (1, false), (2, true), (3, false)]);
+        let odd = pattern_log_likelihood(&ens, &[(0, false), (1, true), (2, false), (3, true)]);
+        assert!(family > odd + 4.0, "{family} vs {odd}");
+        // Counting each silent line alone (the first point) would give
+        // 2·ln(0.1) + 2·ln(0.9); the ensemble does far better.
+        let alone = 2.0 * (1.0 - 0.9f64 * (1.0 - (-10.0f64).exp()) - 0.02 * (-10.0f64).exp()).ln();
+        assert!(family > alone + 1.0, "{family} vs {alone}");
+        assert_eq!(pattern_log_likelihood(&ens, &[]), 0.0);
+    }
+
     use super::*;
 
     #[test]

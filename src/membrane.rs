@@ -373,6 +373,54 @@ fn radial_max(m: u32, _j: f64) -> f64 {
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn weyl_cap_bounds_the_line_count() {
+        // Weyl's leading term overcounts a fixed edge, so at the cap the
+        // real count stays at or under MAX_LINES (and not far under).
+        for shape in [
+            rect(0.4, 0.3),
+            rect(2.0, 0.1),
+            Shape::Circle {
+                radius: Meters(0.18),
+            },
+        ] {
+            let lines = shape.lines(1e9, None, None);
+            assert!(lines.len() <= MAX_LINES, "{}", lines.len());
+            assert!(lines.len() > MAX_LINES / 2, "{}", lines.len());
+        }
+    }
+
+    #[test]
+    fn ensemble_silences_even_modes_at_the_centre_tap() {
+        // The first ensemble points tap the centre (x, y) = (1/2, 1/2),
+        // a node of every mode with an even index; (1,1) is excited.
+        let shape = rect(0.4, 0.3);
+        let lines = shape.lines(40.0, None, None);
+        let ens = shape.excitation_ensemble(&lines, 20);
+        assert_eq!(ens.len(), ENSEMBLE_SIZE);
+        for (k, l) in lines.iter().take(20).enumerate() {
+            let (m, n) = l.labels[0];
+            let c = ens[0][k];
+            assert!((0.0..=1.0).contains(&c));
+            if m % 2 == 0 || n % 2 == 0 {
+                assert!(c < 1e-9, "({m},{n}) {c}");
+            }
+        }
+        assert!(ens[0][0] > 0.01, "(1,1) sounds at the centre");
+        // A circle tapped at its centre sounds only the m = 0 modes.
+        let circle = Shape::Circle {
+            radius: Meters(0.2),
+        };
+        let cl = circle.lines(40.0, None, None);
+        let ce = circle.excitation_ensemble(&cl, 12);
+        for (k, l) in cl.iter().take(12).enumerate() {
+            if l.labels[0].0 > 0 {
+                assert!(ce[0][k] < 1e-9, "{:?} {}", l.labels, ce[0][k]);
+            }
+        }
+    }
+
     use super::*;
 
     fn rect(w: f64, h: f64) -> Shape {

@@ -204,6 +204,32 @@ pub fn fit(obs: &[(f64, f64)], sigma: Option<f64>) -> Option<PlateFit> {
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn bending_stiffness_is_never_negative() {
+        // A membrane whose high modes sit a little flat (f ∝ k·(1 − δk²)):
+        // the free fit's D/σ is negative; the fit holds D = 0, keeps the
+        // negative value for the misfit test, and T/σ is the membrane's.
+        let (lx, ly, c2) = (0.3, 0.2, 1000.0);
+        let obs: Vec<(f64, f64)> = [(1, 1), (2, 1), (1, 2), (3, 1), (2, 2), (3, 2), (1, 3)]
+            .iter()
+            .map(|&(m, n)| {
+                let k2 = k_squared(lx, ly, m, n);
+                (frequency_hz(c2, 0.0, k2) * (1.0 - 1e-6 * k2), k2)
+            })
+            .collect();
+        let f = fit(&obs, Some(0.5)).unwrap();
+        assert_eq!(f.d_over_sigma.value, 0.0);
+        let neg = f.negative_d_over_sigma.expect("the free fit went negative");
+        assert!(neg.value < 0.0);
+        assert!(
+            (f.t_over_sigma.value / c2 - 1.0).abs() < 0.02,
+            "{}",
+            f.t_over_sigma.value
+        );
+        assert!(f.bending_stiffness.unwrap().value >= 0.0);
+    }
+
     use super::*;
 
     /// Simply supported square plate, T = 0: ω·a²·√(σ/D) = π²(m² + n²)
