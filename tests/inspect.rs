@@ -462,7 +462,20 @@ fn killed_mid_batch_keeps_every_completed_row() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     let (mut child, out, db) = start_big_batch(d, Stdio::null());
-    // Kill as soon as the first rows are in.
+    // Kill once the CSV and JSON Lines have been published at least once
+    // (every 64 rows or a second), so that what was published is checked
+    // whole, not skipped because it did not exist yet.
+    let csv_path = out.join("inspect.csv");
+    let jsonl = out.join("inspect.jsonl");
+    let deadline = Instant::now() + PATIENCE;
+    while !(csv_path.exists() && jsonl.exists()) {
+        assert!(
+            Instant::now() < deadline,
+            "no publication within {PATIENCE:?}"
+        );
+        assert!(child.try_wait().unwrap().is_none(), "tonus ended early");
+        std::thread::sleep(Duration::from_millis(5));
+    }
     child.kill().unwrap();
     let status = child.wait().unwrap();
     assert!(!status.success(), "killed, not finished");
@@ -491,27 +504,24 @@ fn killed_mid_batch_keeps_every_completed_row() {
         assert_eq!(json["decision"]["decision"], "pass");
     }
 
-    // The CSV and JSON Lines files: absent, or complete as of a publish.
-    let csv_path = out.join("inspect.csv");
-    if csv_path.exists() {
-        let mut r = csv::Reader::from_path(&csv_path).unwrap();
-        assert_eq!(r.headers().unwrap().len(), 21);
-        let recs: Vec<csv::StringRecord> = r.records().map(|x| x.unwrap()).collect();
-        assert!(recs.len() <= rows.len());
-        for rec in &recs {
-            assert_eq!(rec.len(), 21);
-            assert_eq!(&rec[11], "pass");
-        }
+    // The CSV and JSON Lines files: complete as of their last publication
+    // (every row whole, 22 columns, at most the rows the history holds).
+    let mut r = csv::Reader::from_path(&csv_path).unwrap();
+    assert_eq!(r.headers().unwrap().len(), 22);
+    let recs: Vec<csv::StringRecord> = r.records().map(|x| x.unwrap()).collect();
+    assert!(!recs.is_empty(), "a published CSV holds rows");
+    assert!(recs.len() <= rows.len());
+    for rec in &recs {
+        assert_eq!(rec.len(), 22);
+        assert_eq!(&rec[11], "pass");
     }
-    let jsonl = out.join("inspect.jsonl");
-    if jsonl.exists() {
-        let text = std::fs::read_to_string(&jsonl).unwrap();
-        assert!(text.is_empty() || text.ends_with('\n'));
-        assert!(text.lines().count() <= rows.len());
-        for line in text.lines() {
-            let v: serde_json::Value = serde_json::from_str(line).unwrap();
-            assert_eq!(v["decision"]["decision"], "pass");
-        }
+    let text = std::fs::read_to_string(&jsonl).unwrap();
+    assert!(text.ends_with('\n'), "the JSON Lines end with a whole line");
+    let n_lines = text.lines().count();
+    assert!(n_lines >= 1 && n_lines <= rows.len(), "{n_lines} lines");
+    for line in text.lines() {
+        let v: serde_json::Value = serde_json::from_str(line).unwrap();
+        assert_eq!(v["decision"]["decision"], "pass");
     }
 }
 
