@@ -69,14 +69,16 @@ impl Diagnosis {
             .map(|m| format!("{} {:.0} cents", m.model, m.rms_cents))
             .collect::<Vec<_>>()
             .join(", ");
+        if self.overtone_ratios.is_empty() {
+            return format!(
+                "the membrane model does not fit this recording, so its tension is not a measurement: the fundamental is {:.1} Hz, with no strong overtone to compare with a model's mode pattern",
+                self.fundamental_hz
+            );
+        }
         format!(
             "the membrane model does not fit this recording, so its tension is not a measurement: the fundamental is {:.1} Hz, strong overtones at {} × it; nearest mode patterns (rms distance): {}; closest: {}",
             self.fundamental_hz,
-            if self.overtone_ratios.is_empty() {
-                "none".to_string()
-            } else {
-                ratios(&self.overtone_ratios)
-            },
+            ratios(&self.overtone_ratios),
             if models.is_empty() { "none".to_string() } else { models },
             self.closest().unwrap_or("none")
         )
