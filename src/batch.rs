@@ -428,6 +428,7 @@ fn decide_one(spec: &Spec, file: &Path, opts: &InspectOptions, counters: &Counte
                     ..Default::default()
                 },
                 calibration: spec.calibration.clone(),
+                aspect_search: true,
             };
             PLANNER.with(|p| pipeline::measure_with(&rec, &panel, &fit_opts, &mut p.borrow_mut()))
         };

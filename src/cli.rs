@@ -443,6 +443,7 @@ pub fn fit_options(
         model,
         analysis: input.analysis()?,
         calibration: None,
+        aspect_search: true,
     })
 }
 

@@ -126,6 +126,10 @@ pub fn fit(
     })
 }
 
+/// Most taps of one file that are fitted one by one (the time bound of a
+/// recording whatever its length: a tap is about 10–50 ms of fitting).
+pub const MAX_TAPS_FITTED: usize = 8;
+
 /// What `tonus fit` measures on one recording file, before any output:
 /// read, measure, and with several taps, fit each and combine them. The
 /// corpus scorecard ([`crate::scorecard`]) calls this too, so both run
@@ -152,6 +156,18 @@ pub fn measure_file(
                 .iter()
                 .map(|t| (t * sr).round() as usize),
         );
+        // Each tap is a fit of its own: at most MAX_TAPS_FITTED are, so a
+        // long file of many taps keeps a time bound; the rest are named.
+        if onsets.len() > MAX_TAPS_FITTED {
+            m.warnings.push(crate::warning::Warning::SearchLimit {
+                detail: format!(
+                    "the file holds {} taps; the first {MAX_TAPS_FITTED} were fitted, the rest (from {:.3} s) were not; record a few taps per file",
+                    onsets.len(),
+                    onsets[MAX_TAPS_FITTED] as f64 / sr
+                ),
+            });
+            onsets.truncate(MAX_TAPS_FITTED);
+        }
         let (_, series) = crate::taps::measure_taps(&rec, &onsets, panel, opts)?;
         m.taps = Some(series);
     }

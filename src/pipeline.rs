@@ -28,6 +28,12 @@ pub struct FitOptions {
     pub analysis: AnalysisConfig,
     /// Per-mode correction factors to fit against ([`crate::calibration`]).
     pub calibration: Option<std::sync::Arc<crate::calibration::Loaded>>,
+    /// Run the isotropic rectangle's aspect search when the entered
+    /// sides' labelling is not good enough (true); false for the further
+    /// taps of one file, which are labelled on the entered sides alone so
+    /// that a file of many short taps keeps its time bound (their spans
+    /// are short, their peaks coarse, and the first tap has searched).
+    pub aspect_search: bool,
 }
 
 impl Default for FitOptions {
@@ -36,6 +42,7 @@ impl Default for FitOptions {
             model: FitModel::Isotropic,
             analysis: AnalysisConfig::default(),
             calibration: None,
+            aspect_search: true,
         }
     }
 }
@@ -872,9 +879,11 @@ pub fn measure_with(
             let ens = ensemble_for(panel, &lines);
             let full = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
             let m0 = matching::match_modes_in(parts, &lines, band, full, ens.as_deref());
-            if m0.as_ref().is_some_and(|m| {
-                entered_sides_suffice(m, parts, &lines, (width.0, height.0), band.0)
-            }) {
+            if !opts.aspect_search
+                || m0.as_ref().is_some_and(|m| {
+                    entered_sides_suffice(m, parts, &lines, (width.0, height.0), band.0)
+                })
+            {
                 (lines, m0)
             } else {
                 let (l, m, _) = biaxial_search(

@@ -90,7 +90,11 @@ pub fn measure_taps(
         samples.extend_from_slice(&rec.samples[on..end]);
         let mut cut = Recording::from_samples(&rec.path, samples, sr);
         cut.clipped_fraction = rec.clipped_fraction;
-        let m = pipeline::measure(&cut, panel, opts)?;
+        let further = pipeline::FitOptions {
+            aspect_search: false,
+            ..opts.clone()
+        };
+        let m = pipeline::measure(&cut, panel, &further)?;
         let value = m.tension.or(m.tension_over_density);
         taps.push(TapResult {
             onset_s: on as f64 / sr,
