@@ -554,47 +554,82 @@ fn biaxial_search(
         };
         matching_lines(&p, f_ratio)
     };
-    // A quick survey of every ratio with the fewer anchors of
-    // BIAXIAL_SURVEY_ANCHORS, then the full search at the best ratio and
-    // its two neighbours.
-    let (ap, al) = if prior_at_one.is_some() {
-        (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES)
-    } else {
-        BIAXIAL_SURVEY_ANCHORS
+    // The aspect search surveys with the full seeds (the quick ones missed
+    // the true wave speed on a long strip), and always also tries the
+    // entered sides in full.
+    let (survey, always) = match prior_at_one {
+        Some(_) => ((matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES), Some(0)),
+        None => (BIAXIAL_SURVEY_ANCHORS, None),
     };
-    let surveyed = (-steps..=steps)
+    match grid_search(
+        parts,
+        panel,
+        band,
+        -steps..=steps,
+        lines_at,
+        survey,
+        log_prior,
+        always,
+    ) {
+        Some((l, m, k0)) => (l, Some(m), k0.abs() == steps),
+        None => (Vec::new(), None, false),
+    }
+}
+
+/// The survey-then-search shared by the model searches: every grid point
+/// k of `ks` (lines `lines_at(k)`) is matched with the `survey` anchors
+/// and scored with its `log_prior`; the best point (ties to the smaller
+/// |k|) and its two neighbours, and `always` if given, are matched with
+/// the full anchors, and the best of those is kept. Returns its lines,
+/// matching and the surveyed best point k₀ (None when nothing matched).
+#[allow(clippy::too_many_arguments)]
+fn grid_search(
+    parts: &[crate::partials::Partial],
+    panel: &Panel,
+    band: (f64, f64),
+    ks: std::ops::RangeInclusive<i32>,
+    lines_at: impl Fn(i32) -> Vec<ModeLine>,
+    survey: (usize, usize),
+    log_prior: impl Fn(i32) -> f64,
+    always: Option<i32>,
+) -> Option<(Vec<ModeLine>, Matching, i32)> {
+    let (lo, hi) = (*ks.start(), *ks.end());
+    let (k0, _) = ks
         .filter_map(|k| {
-            let lines = lines_at(k);
-            let ens = ensemble_for(panel, &lines);
-            let m = matching::match_modes_in(parts, &lines, band, (ap, al), ens.as_deref())?;
+            let m = match_on(parts, &lines_at(k), panel, band, survey)?;
             Some((k, m.score + log_prior(k)))
         })
-        .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.abs().cmp(&a.0.abs())));
-    let Some((k0, _)) = surveyed else {
-        return (Vec::new(), None, false);
-    };
-    let at_edge = k0.abs() == steps;
-    let mut best: Option<(Vec<ModeLine>, Matching, f64)> = None;
-    let mut ks: Vec<i32> = ((k0 - 1).max(-steps)..=(k0 + 1).min(steps)).collect();
-    if prior_at_one.is_some() && !ks.contains(&0) {
-        ks.push(0);
+        .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.abs().cmp(&a.0.abs())))?;
+    let mut full: Vec<i32> = ((k0 - 1).max(lo)..=(k0 + 1).min(hi)).collect();
+    if let Some(k) = always.filter(|k| !full.contains(k)) {
+        full.push(k);
     }
-    for k in ks {
+    let mut best: Option<(Vec<ModeLine>, Matching, f64)> = None;
+    for k in full {
         let lines = lines_at(k);
-        let ens = ensemble_for(panel, &lines);
-        let full = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
-        if let Some(m) = matching::match_modes_in(parts, &lines, band, full, ens.as_deref()) {
+        let anchors = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
+        if let Some(m) = match_on(parts, &lines, panel, band, anchors) {
             let score = m.score + log_prior(k);
             if best.as_ref().is_none_or(|(_, _, b)| score > *b) {
                 best = Some((lines, m, score));
             }
         }
     }
-    let best = best.map(|(l, m, _)| (l, m));
-    match best {
-        Some((l, m)) => (l, Some(m), at_edge),
-        None => (Vec::new(), None, at_edge),
-    }
+    best.map(|(l, m, _)| (l, m, k0))
+}
+
+/// The matcher on `lines` with the given anchors, the low lines' presence
+/// scored over the excitation ensemble when the tap point is not given
+/// ([`ensemble_for`]).
+fn match_on(
+    parts: &[crate::partials::Partial],
+    lines: &[ModeLine],
+    panel: &Panel,
+    band: (f64, f64),
+    anchors: (usize, usize),
+) -> Option<Matching> {
+    let ens = ensemble_for(panel, lines);
+    matching::match_modes_in(parts, lines, band, anchors, ens.as_deref())
 }
 
 /// Largest D·k₁₁²/T the plate search tries: the (1,1) mode's bending
@@ -650,31 +685,17 @@ fn plate_search(
         out.sort_by(|a, b| a.factor.total_cmp(&b.factor));
         out
     };
-    let (ap, al) = BIAXIAL_SURVEY_ANCHORS;
-    let surveyed = (0..=steps)
-        .filter_map(|k| {
-            let lines = lines_at(k);
-            let ens = ensemble_for(panel, &lines);
-            let m = matching::match_modes_in(parts, &lines, band, (ap, al), ens.as_deref())?;
-            Some((k, m.score))
-        })
-        .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.cmp(&a.0)));
-    let Some((k0, _)) = surveyed else {
-        return (Vec::new(), None, false);
-    };
-    let mut best: Option<(Vec<ModeLine>, Matching)> = None;
-    for k in (k0 - 1).max(0)..=(k0 + 1).min(steps) {
-        let lines = lines_at(k);
-        let ens = ensemble_for(panel, &lines);
-        let full = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
-        if let Some(m) = matching::match_modes_in(parts, &lines, band, full, ens.as_deref()) {
-            if best.as_ref().is_none_or(|(_, b)| m.score > b.score) {
-                best = Some((lines, m));
-            }
-        }
-    }
-    match best {
-        Some((l, m)) => (l, Some(m), k0 == steps),
+    match grid_search(
+        parts,
+        panel,
+        band,
+        0..=steps,
+        lines_at,
+        BIAXIAL_SURVEY_ANCHORS,
+        |_| 0.0,
+        None,
+    ) {
+        Some((l, m, k0)) => (l, Some(m), k0 == steps),
         None => (Vec::new(), None, false),
     }
 }
@@ -876,9 +897,8 @@ pub fn measure_with(
         (FitModel::Isotropic, Shape::Rectangle { width, height })
             if !parts.is_empty() && opts.calibration.is_none() =>
         {
-            let ens = ensemble_for(panel, &lines);
             let full = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
-            let m0 = matching::match_modes_in(parts, &lines, band, full, ens.as_deref());
+            let m0 = match_on(parts, &lines, panel, band, full);
             if !opts.aspect_search
                 || m0.as_ref().is_some_and(|m| {
                     entered_sides_suffice(m, parts, &lines, (width.0, height.0), band.0)
@@ -915,14 +935,8 @@ pub fn measure_with(
             }
         }
         _ => {
-            let ens = ensemble_for(panel, &lines);
-            let m = matching::match_modes_in(
-                parts,
-                &lines,
-                band,
-                (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES),
-                ens.as_deref(),
-            );
+            let full = (matching::ANCHOR_PARTIALS, matching::ANCHOR_LINES);
+            let m = match_on(parts, &lines, panel, band, full);
             (lines, m)
         }
     };
