@@ -204,6 +204,18 @@ fn corpus_error(path: &Path, what: &str) -> TonusError {
     }
 }
 
+/// A case's `truth.json`, parsed, with its path (for error messages).
+fn read_truth(case: &Path) -> Result<(PathBuf, Value)> {
+    let truth_path = case.join("truth.json");
+    let text = std::fs::read_to_string(&truth_path).map_err(|e| TonusError::Io {
+        path: truth_path.clone(),
+        reason: e.to_string(),
+    })?;
+    let t = serde_json::from_str(&text)
+        .map_err(|e| corpus_error(&truth_path, &format!("invalid JSON ({e})")))?;
+    Ok((truth_path, t))
+}
+
 fn num(v: &Value, key: &str) -> Option<f64> {
     v.get(key).and_then(Value::as_f64)
 }
@@ -222,13 +234,7 @@ pub fn score_case(case: &Path, with_tap: bool) -> Result<CaseScore> {
 /// # Errors
 /// A broken `truth.json`.
 pub fn score_case_scaled(case: &Path, with_tap: bool, scale: (f64, f64)) -> Result<CaseScore> {
-    let truth_path = case.join("truth.json");
-    let text = std::fs::read_to_string(&truth_path).map_err(|e| TonusError::Io {
-        path: truth_path.clone(),
-        reason: e.to_string(),
-    })?;
-    let t: Value = serde_json::from_str(&text)
-        .map_err(|e| corpus_error(&truth_path, &format!("invalid JSON ({e})")))?;
+    let (truth_path, t) = read_truth(case)?;
     let id = case
         .file_name()
         .map(|s| s.to_string_lossy().into_owned())
@@ -420,13 +426,7 @@ pub fn score_case_scaled(case: &Path, with_tap: bool, scale: (f64, f64)) -> Resu
 /// # Errors
 /// A broken `truth.json`.
 pub fn fit_args(case: &Path) -> Result<Vec<String>> {
-    let truth_path = case.join("truth.json");
-    let text = std::fs::read_to_string(&truth_path).map_err(|e| TonusError::Io {
-        path: truth_path.clone(),
-        reason: e.to_string(),
-    })?;
-    let t: Value = serde_json::from_str(&text)
-        .map_err(|e| corpus_error(&truth_path, &format!("invalid JSON ({e})")))?;
+    let (truth_path, t) = read_truth(case)?;
     let inputs = t
         .get("inputs")
         .ok_or_else(|| corpus_error(&truth_path, "no inputs"))?;
