@@ -56,8 +56,9 @@ pub const AMBIGUITY_MARGIN: f64 = 2.0;
 /// Partials tried as the anchor of a hypothesis (strongest and lowest).
 pub const ANCHOR_PARTIALS: usize = 6;
 /// A partial seeds hypotheses as one of the lowest only when it stands
-/// within this many dB of the strongest.
-pub const ANCHOR_RANGE_DB: f64 = 30.0;
+/// within this many dB of the strongest (the partial finder's own range
+/// for the low partials it keeps, so that every kept low partial can seed).
+pub const ANCHOR_RANGE_DB: f64 = crate::partials::LOW_PARTIALS_RANGE_DB;
 
 /// The lowest frequency a hypothesis is anchored on: the lowest partial
 /// within [`ANCHOR_RANGE_DB`] of the strongest. The lines a search needs

@@ -27,6 +27,10 @@ pub const DEFAULT_MIN_FREQUENCY_HZ: f64 = 20.0;
 /// Partials kept by frequency beside the strongest [`DEFAULT_MAX_PARTIALS`]:
 /// the lowest this many that pass the tests.
 pub const LOW_PARTIALS_KEPT: usize = 24;
+/// The low partials kept beside the strongest stand within this many dB
+/// of the strongest: modes a person sees beside the loud ones, not the
+/// noise floor's ripple under a dense spectrum.
+pub const LOW_PARTIALS_RANGE_DB: f64 = 30.0;
 /// Default largest number of partials kept (the strongest).
 pub const DEFAULT_MAX_PARTIALS: usize = 48;
 /// A partial is a hum candidate within this distance (Hz) of k·mains/k, i.e.
@@ -424,13 +428,11 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
         for k in keep.iter_mut().take(cfg.max_partials) {
             *k = true;
         }
-        // Only those within the matcher's anchor range of the strongest:
-        // a mode a person sees beside the loud ones, not the noise floor's
-        // ripple under a dense spectrum.
+        // Only those within LOW_PARTIALS_RANGE_DB of the strongest.
         let top = cands.first().map_or(0.0, |p| p.level_db);
         for &i in by_freq
             .iter()
-            .filter(|&&i| cands[i].level_db >= top - crate::matching::ANCHOR_RANGE_DB)
+            .filter(|&&i| cands[i].level_db >= top - LOW_PARTIALS_RANGE_DB)
             .take(LOW_PARTIALS_KEPT)
         {
             keep[i] = true;
