@@ -53,11 +53,19 @@ pub fn fit_report(
     );
     if let Some(t) = m.tension {
         let k = unit.newtons_per_meter();
-        let _ = writeln!(
-            s,
-            "| **tension** | **{}** (standard uncertainty, k = 1) |",
-            pm(t.value / k, t.standard_uncertainty / k, unit.symbol())
-        );
+        if m.diagnosis.is_some() {
+            let _ = writeln!(
+                s,
+                "| tension | not a measurement: the model does not fit (see *Diagnosis*); the fit gave {} |",
+                pm(t.value / k, t.standard_uncertainty / k, unit.symbol())
+            );
+        } else {
+            let _ = writeln!(
+                s,
+                "| **tension** | **{}** (standard uncertainty, k = 1) |",
+                pm(t.value / k, t.standard_uncertainty / k, unit.symbol())
+            );
+        }
     }
     if let Some(t) = m.tension_over_density {
         let _ = writeln!(

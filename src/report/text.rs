@@ -91,8 +91,13 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                 let k = unit.newtons_per_meter();
                 let _ = writeln!(
                     s,
-                    "tension      {}  (k = 1)",
-                    pm(t.value / k, t.standard_uncertainty / k, unit.symbol())
+                    "tension      {}  (k = 1){}",
+                    pm(t.value / k, t.standard_uncertainty / k, unit.symbol()),
+                    if m.diagnosis.is_some() {
+                        "  — not a measurement: the model does not fit (see diagnosis)"
+                    } else {
+                        ""
+                    }
                 );
             } else {
                 let _ = writeln!(s, "tension      – (give --areal-density to get N/m)");
