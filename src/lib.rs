@@ -33,6 +33,7 @@ pub mod plate;
 pub mod quality;
 pub mod recording;
 pub mod report;
+pub mod round;
 pub mod scorecard;
 pub mod spec;
 pub mod spectrum;

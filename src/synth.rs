@@ -25,7 +25,16 @@
 //! eigen-solve in `tests/disk_evenness.rs` — with amplitudes
 //! R(tap)R(pickup)·cos θ_tap·cos θ_pickup and ·sin θ_tap·sin θ_pickup
 //! (an unknown pickup angle counts as 1 for both, an unknown tap angle as
-//! 0°). Pairs with m ≥ 2 have no first-order split and stay one partial.
+//! 0°). `skew_angle_deg` = θ₀ turns the tighter axis: the upper member's
+//! shape is then cos(θ − θ₀) and the angles above are measured from θ₀.
+//! Pairs with m ≥ 2 have no first-order split under a uniform stress and
+//! stay one partial, unless `pattern` holds the order p = 2m of a rim
+//! tension pattern (see [`SynthConfig::pattern`]).
+//!
+//! A round of taps ([`synthesise_round`]): one tap per given angle, at
+//! the tap point's radius, each synthesised alone and added at its onset
+//! with a random strength (a hand does not tap twice alike), then scaled
+//! and given noise and hum as a single tap is.
 //!
 //! Noise is white Gaussian from a fixed seed. The SNR is the RMS of the
 //! noiseless tap over its first 100 ms against the noise RMS, in dB.
@@ -113,6 +122,16 @@ pub struct SynthConfig {
     /// with this ε (x along θ = 0). Each (1, n) pair splits into its cos
     /// and sin members at f₀·√(1 ± ε/2) ([`crate::evenness`]).
     pub tension_skew: Option<f64>,
+    /// Direction θ₀ of the tighter principal axis of `tension_skew`,
+    /// degrees from x (0 by default): the upper member of each (1, n)
+    /// pair has the angular shape cos(θ − θ₀), the lower sin(θ − θ₀).
+    pub skew_angle_deg: f64,
+    /// Higher even orders of a rim tension pattern T(θ) = T(1 + Σ δ_p ·
+    /// cos p(θ − θ_p)), as (p, δ_p, θ_p in degrees), p even and ≥ 4: the
+    /// order-m = p/2 pairs split by Δf/f₀ = c(m,n)·δ_p with c the
+    /// [`crate::evenness::lug_split_coefficient`]; the member cos m(θ − θ_p)
+    /// is the upper one when c > 0, the lower when c < 0.
+    pub pattern: Vec<(u32, f64, f64)>,
 }
 
 impl SynthConfig {
@@ -141,6 +160,8 @@ impl SynthConfig {
             tension_y: None,
             bending_stiffness: None,
             tension_skew: None,
+            skew_angle_deg: 0.0,
+            pattern: Vec::new(),
         }
     }
 }
@@ -242,9 +263,29 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
     // (frequency, amplitude, amplitude decay rate 1/τ)
     let mut comps: Vec<(f64, f64, f64)> = Vec::new();
     for line in &lines {
-        if let (Some(eps), Shape::Circle { .. }) = (cfg.tension_skew, cfg.shape) {
+        if let Shape::Circle { .. } = cfg.shape {
             let (m, nn) = line.labels[0];
-            if m == 1 && line.labels.len() == 1 {
+            // (upper/f₀, lower/f₀, orientation α of the upper member's
+            // cos m(θ − α) shape in radians) of a split pair, if split.
+            let split = match (m, cfg.tension_skew) {
+                (1, Some(eps)) => Some((
+                    (1.0 + eps / 2.0).sqrt(),
+                    (1.0 - eps / 2.0).sqrt(),
+                    cfg.skew_angle_deg.to_radians(),
+                )),
+                (0, _) | (1, None) => None,
+                _ => cfg
+                    .pattern
+                    .iter()
+                    .find(|p| p.0 == 2 * m)
+                    .map(|&(_, d, th)| {
+                        let c = crate::evenness::lug_split_coefficient(m, nn);
+                        let s = (c * d).abs();
+                        let quarter = if c >= 0.0 { 0.0 } else { 90.0 / m as f64 };
+                        (1.0 + s / 2.0, 1.0 - s / 2.0, (th + quarter).to_radians())
+                    }),
+            };
+            if let (Some((up, down, alpha)), 1) = (split, line.labels.len()) {
                 let air = if cfg.air_loaded {
                     crate::airload::loading_factor(line.factor, cfg.areal_density.0)
                 } else {
@@ -253,14 +294,18 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
                 let f0 = line.factor * c * air;
                 let radial = |u: f64| cfg.shape.mode_shape(m, nn, Point { u, v: None });
                 let r = radial(cfg.tap.u) * cfg.pickup.map(|p| radial(p.u)).unwrap_or(1.0);
-                let th_t = cfg.tap.v.unwrap_or(0.0).to_radians();
+                let mm = m as f64;
+                let th_t = mm * (cfg.tap.v.unwrap_or(0.0).to_radians() - alpha);
                 let (cp, sp) = match cfg.pickup.and_then(|p| p.v) {
-                    Some(deg) => (deg.to_radians().cos(), deg.to_radians().sin()),
+                    Some(deg) => (
+                        (mm * (deg.to_radians() - alpha)).cos(),
+                        (mm * (deg.to_radians() - alpha)).sin(),
+                    ),
                     None => (1.0, 1.0),
                 };
                 for (f, amp) in [
-                    (f0 * (1.0 + eps / 2.0).sqrt(), r * th_t.cos() * cp),
-                    (f0 * (1.0 - eps / 2.0).sqrt(), r * th_t.sin() * sp),
+                    (f0 * up, r * th_t.cos() * cp),
+                    (f0 * down, r * th_t.sin() * sp),
                 ] {
                     let a = amp * half_sine_spectrum(f, cfg.tap_duration_s);
                     let t60 = cfg.t60_s * (f1 / f).sqrt();
@@ -408,6 +453,78 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
     }
     for v in x.iter_mut() {
         *v *= PEAK_FS / peak;
+    }
+    let o = onsets[0];
+    let win = ((0.1 * sr) as usize).min(n - o).max(1);
+    let rms = (x[o..o + win].iter().map(|v| v * v).sum::<f64>() / win as f64).sqrt();
+    let noise_rms = rms * 10f64.powf(-cfg.snr_db / 20.0);
+    let mut rng = Rng::new(cfg.seed);
+    let hum = cfg
+        .hum
+        .map(|(mains, level)| (mains, rms * 10f64.powf(level / 20.0)));
+    let hum_phase = rng.uniform() * 2.0 * PI;
+    let gain = 10f64.powf(cfg.gain_db / 20.0);
+    for (i, v) in x.iter_mut().enumerate() {
+        let mut s = *v + noise_rms * rng.normal();
+        if let Some((mains, a)) = hum {
+            let t = i as f64 / sr;
+            for (k, rel) in [(1.0, 1.0), (2.0, 0.5), (3.0, 0.316)] {
+                s += a * rel * (2.0 * PI * mains * k * t + hum_phase * k).sin();
+            }
+        }
+        *v = (s * gain).clamp(-1.0, 1.0);
+    }
+    Ok(x)
+}
+
+/// A round of taps: one tap at each of `angles_deg` (degrees, the tap
+/// point's radius `cfg.tap.u`), `cfg.tap_interval_s` apart after
+/// `cfg.pre_roll_s`, each with a strength drawn uniformly within
+/// ±`force_spread_db` dB (seeded from `cfg.seed`). Noise, hum and gain
+/// are applied to the sum as [`synthesise`] applies them to one tap, the
+/// SNR taken against the first tap.
+///
+/// # Errors
+/// As [`synthesise`]; no angle, or taps that do not fit in the length.
+pub fn synthesise_round(
+    cfg: &SynthConfig,
+    angles_deg: &[f64],
+    force_spread_db: f64,
+) -> Result<Vec<f64>> {
+    let sr = cfg.sample_rate_hz as f64;
+    let n = (cfg.duration_s * sr).round() as usize;
+    let onsets: Vec<usize> = (0..angles_deg.len())
+        .map(|i| ((cfg.pre_roll_s + i as f64 * cfg.tap_interval_s) * sr).round() as usize)
+        .collect();
+    if angles_deg.is_empty() || onsets.last().is_some_and(|&o| o + (0.1 * sr) as usize >= n) {
+        return Err(TonusError::OutOfRange {
+            key: "--tap-angles".into(),
+            value: format!("{} taps {} s apart", angles_deg.len(), cfg.tap_interval_s),
+            why: format!(
+                "give at least one angle, and a --length that holds every tap (here more than {:.2} s)",
+                cfg.pre_roll_s + angles_deg.len() as f64 * cfg.tap_interval_s
+            ),
+        });
+    }
+    let mut rng = Rng::new(cfg.seed.wrapping_add(0x5EED));
+    let mut x = vec![0.0; n];
+    for (&angle, &o) in angles_deg.iter().zip(&onsets) {
+        let mut one = cfg.clone();
+        one.tap.v = Some(angle);
+        one.taps = 1;
+        one.pre_roll_s = 0.0;
+        one.duration_s = (n - o) as f64 / sr;
+        one.snr_db = 140.0;
+        one.hum = None;
+        one.gain_db = 0.0;
+        let gain = 10f64.powf(force_spread_db * (2.0 * rng.uniform() - 1.0) / 20.0);
+        for (v, s) in x[o..].iter_mut().zip(synthesise(&one)?) {
+            *v += gain * s;
+        }
+    }
+    let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    for v in x.iter_mut() {
+        *v *= PEAK_FS / peak.max(1e-300);
     }
     let o = onsets[0];
     let win = ((0.1 * sr) as usize).min(n - o).max(1);
