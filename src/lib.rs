@@ -38,6 +38,7 @@ pub mod scorecard;
 pub mod spec;
 pub mod spectrum;
 pub mod stats;
+pub mod stream;
 pub mod synth;
 pub mod tap;
 pub mod taps;
