@@ -24,6 +24,7 @@ pub mod evenness;
 pub mod fit;
 pub mod history;
 pub mod identifiability;
+pub mod lug_advice;
 pub mod matching;
 pub mod membrane;
 pub mod panel;
