@@ -144,7 +144,7 @@ pub fn stop_on_signals() -> Result<()> {
 }
 
 /// The signal that asked for a stop, if any.
-fn stop_requested() -> Option<i32> {
+pub fn stop_requested() -> Option<i32> {
     match STOP_SIGNAL.load(Ordering::SeqCst) {
         0 => None,
         s => Some(s),

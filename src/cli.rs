@@ -171,7 +171,13 @@ pub enum Command {
         /// Uneven tension on a circle: Txx = T(1+ε), Tyy = T(1−ε), ε as a fraction or percent, e.g. 0.02 or 2% (splits each (1,n) pair; tap off the axes, e.g. --tap-at 0.6,30, to hear both members).
         #[arg(long)]
         tension_skew: Option<String>,
+        #[command(flatten)]
+        round: crate::round_cmd::RoundSynthArgs,
     },
+    /// A round of taps, one near each lug of a drum head: the tension
+    /// pattern, each lug's deviation from the mean and which lugs to turn
+    /// (from recordings, or live from standard input: "-").
+    Round(Box<crate::round_cmd::RoundArgs>),
     /// Decide recordings against a specification (pass / fail /
     /// indeterminate / not measured), in parallel, with a history record.
     Inspect {

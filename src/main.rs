@@ -93,6 +93,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             tension_y,
             bending_stiffness,
             tension_skew,
+            round,
         } => {
             let cfg = cli::synth_config(
                 &panel,
@@ -115,8 +116,10 @@ fn run(cli: Cli) -> Result<Outcome> {
                 bending_stiffness,
                 tension_skew.as_deref(),
             )?;
+            let mut cfg = cfg;
+            round.apply(&mut cfg)?;
             let (b, float) = cli::sample_format(&bits)?;
-            commands::synth(&cfg, &output, b, float)
+            round.synthesise(&cfg, &output, b, float)
         }
         Command::Calibrate {
             recordings,
@@ -139,6 +142,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             )
         }
         Command::Demo { recordings, out } => commands::demo(&recordings, &out),
+        Command::Round(args) => tonus::round_cmd::run(&args, &mut print_line),
         Command::Inspect {
             spec,
             inputs,
