@@ -20,9 +20,9 @@ use std::sync::OnceLock;
 /// Picture size, pixels (square).
 pub const SIZE_PX: u32 = 900;
 /// Radius of the rim, pixels.
-const RIM_PX: f64 = 270.0;
+const RIM_PX: f64 = 225.0;
 /// Longest bar, pixels (the largest |d| + 2u, or the tolerance).
-const LONGEST_BAR_PX: f64 = 120.0;
+const LONGEST_BAR_PX: f64 = 85.0;
 /// Font family registered for the picture.
 const FONT_FAMILY: &str = "tonus-round-sans";
 static FONT_BYTES: &[u8] = include_bytes!("../assets/fonts/DejaVuSans.ttf");
@@ -70,7 +70,7 @@ pub fn render(
     {
         let root = BitMapBackend::with_buffer(&mut buf, (SIZE_PX, SIZE_PX)).into_drawing_area();
         root.fill(&WHITE).map_err(err)?;
-        let c = (SIZE_PX as f64 / 2.0, SIZE_PX as f64 / 2.0 + 20.0);
+        let c = (SIZE_PX as f64 / 2.0, SIZE_PX as f64 / 2.0 + 5.0);
         let at = |rad: f64, deg: f64| -> (i32, i32) {
             let t = deg.to_radians();
             (
@@ -161,19 +161,14 @@ pub fn render(
                         .map_err(err)?;
                 }
                 let label = format!(
-                    "tighter along {:.0}° ± {:.0}°, ε = {:.1} ± {:.1} %",
-                    th,
-                    o.angle_u_deg.unwrap_or(0.0).max(1.0),
-                    o.amplitude_pct,
-                    o.amplitude_u_pct.max(0.1)
+                    "green arrow: tighter direction {} (mod 180°), ε = {}",
+                    crate::report::text::pm(th, o.angle_u_deg.unwrap_or(0.0), "°"),
+                    crate::report::text::pm(o.amplitude_pct, o.amplitude_u_pct, "%")
                 );
-                let mid = at(60.0, th + 90.0);
                 root.draw(&Text::new(
                     label,
-                    mid,
-                    font(16.0)
-                        .color(&AXIS)
-                        .pos(Pos::new(HPos::Center, VPos::Center)),
+                    (n as i32 / 2, n as i32 - 58),
+                    font(16.0).color(&AXIS).pos(Pos::new(HPos::Center, VPos::Center)),
                 ))
                 .map_err(err)?;
             }
@@ -210,13 +205,11 @@ pub fn render(
                     ))
                     .map_err(err)?;
                 }
-                let txt = format!("{d:+.1} %");
+                let (x, y) = at(RIM_PX + LONGEST_BAR_PX + 36.0, ang);
                 root.draw(&Text::new(
-                    txt,
-                    at(RIM_PX + LONGEST_BAR_PX + 58.0, ang),
-                    font(15.0)
-                        .color(&colour)
-                        .pos(Pos::new(HPos::Center, VPos::Center)),
+                    format!("{d:+.1} %"),
+                    (x, y + 20),
+                    font(16.0).color(&colour).pos(Pos::new(HPos::Center, VPos::Center)),
                 ))
                 .map_err(err)?;
             }
@@ -229,8 +222,8 @@ pub fn render(
             .map_err(err)?;
             root.draw(&Text::new(
                 format!("{}", j + 1),
-                at(RIM_PX + LONGEST_BAR_PX + 32.0, ang),
-                font(20.0)
+                at(RIM_PX + LONGEST_BAR_PX + 36.0, ang),
+                font(22.0)
                     .color(&INK)
                     .pos(Pos::new(HPos::Center, VPos::Center)),
             ))
@@ -258,7 +251,7 @@ pub fn render(
         );
         root.draw(&Text::new(
             foot,
-            (n as i32 / 2, n as i32 - 30),
+            (n as i32 / 2, n as i32 - 28),
             font(14.0)
                 .color(&INK)
                 .pos(Pos::new(HPos::Center, VPos::Center)),
