@@ -8,12 +8,12 @@
 //! `tap` analyses), f drawn uniformly in [1000, 1001) Hz and φ in [0, 2π)
 //! per trial, SNR = A²/(2σ²) (initial-amplitude SNR per sample), seeded.
 //! Printed: RMSE of the frequency over the single-component CRLB
-//! (`tonus::crlb::crlb_frequency_hz`) for
+//! (`tonus::signal::crlb::crlb_frequency_hz`) for
 //! - FFT peak: window, zero padding to ≥ 4× (`spectrum::fast_size`),
 //!   parabolic interpolation of the log magnitude (as `partials`), with
 //!   the pipeline's tapered window (`spectrum::window`) and with Hann;
 //! - the matrix-pencil + maximum-likelihood estimator
-//!   (`tonus::estimator`), with the share of trials where it found the
+//!   (`tonus::signal::estimator`), with the share of trials where it found the
 //!   partial and the RMSE of its T60 in percent.
 //!
 //! Then the probability of resolving two equal-level partials a given
@@ -22,10 +22,10 @@
 use realfft::RealFftPlanner;
 use std::f64::consts::{LN_10, PI};
 use std::time::Instant;
-use tonus::crlb::crlb_frequency_hz;
-use tonus::estimator::{BandConfig, SpanAnalyser};
-use tonus::spectrum;
-use tonus::synth::Rng;
+use tonus::physics::synth::Rng;
+use tonus::signal::crlb::crlb_frequency_hz;
+use tonus::signal::estimator::{BandConfig, SpanAnalyser};
+use tonus::signal::spectrum;
 
 const FS: f64 = 48_000.0;
 const SPAN_S: f64 = 1.2;

@@ -13,7 +13,7 @@
 //!   included) and the child's own peak resident set from `wait4`'s
 //!   rusage (`ru_maxrss`, KiB on Linux). Equal peaks for 250 and 1,000
 //!   show that memory does not grow with the count.
-//! - **in-process**: `tonus::batch::inspect` called from this process,
+//! - **in-process**: `tonus::app::batch::inspect` called from this process,
 //!   with the stages timed (read and hash, fit and decide, history
 //!   insert, output rewrite, report) and the peak resident set `VmHWM`
 //!   from `/proc/self/status`, reset before the run by writing 5 to
@@ -29,10 +29,10 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::time::Instant;
-use tonus::membrane::{Point, Shape};
-use tonus::recording::write_wav;
-use tonus::synth::{synthesise, Rng, SynthConfig};
-use tonus::units::{KgPerM2, Meters, NewtonsPerMeter};
+use tonus::base::units::{KgPerM2, Meters, NewtonsPerMeter};
+use tonus::physics::membrane::{Point, Shape};
+use tonus::physics::synth::{synthesise, Rng, SynthConfig};
+use tonus::signal::recording::write_wav;
 
 /// Nominal tension of the benchmark specification, N/m.
 const NOMINAL_N_PER_M: f64 = 2000.0;
@@ -259,8 +259,8 @@ fn main() {
     }
 
     // In-process, with stage timings.
-    let spec = tonus::spec::Spec::from_file(&spec_path).expect("spec");
-    println!("\nin-process (tonus::batch::inspect):");
+    let spec = tonus::acceptance::spec::Spec::from_file(&spec_path).expect("spec");
+    println!("\nin-process (tonus::app::batch::inspect):");
     println!(
         "{:>8} {:>10} {:>16} {:>10} {:>18} {:>14}",
         "files", "wall [s]", "recordings/s", "CPU [s]", "CPU ms/recording", "VmHWM [MB]"
@@ -271,7 +271,7 @@ fn main() {
         let _ = std::fs::remove_dir_all(&out);
         let reset = reset_hwm();
         let cpu0 = self_cpu_s();
-        let opts = tonus::batch::InspectOptions {
+        let opts = tonus::app::batch::InspectOptions {
             out: out.clone(),
             history: Some(out.join("history.sqlite")),
             station: None,
@@ -281,7 +281,8 @@ fn main() {
         };
         let t0 = Instant::now();
         let (outcome, timing) =
-            tonus::batch::inspect_timed(&spec, &files[..n], &opts, &mut |_| {}).expect("inspect");
+            tonus::app::batch::inspect_timed(&spec, &files[..n], &opts, &mut |_| {})
+                .expect("inspect");
         let secs = t0.elapsed().as_secs_f64();
         let cpu = self_cpu_s() - cpu0;
         let hwm = vm_hwm_kib().map_or(f64::NAN, |k| k as f64 / 1024.0);
@@ -337,12 +338,12 @@ fn mode_arg() -> String {
         .unwrap_or_else(|| "near-limits".into())
 }
 
-fn refinement_of(mode: &str) -> tonus::batch::Refinement {
-    tonus::batch::Refinement::from_name(mode)
+fn refinement_of(mode: &str) -> tonus::app::batch::Refinement {
+    tonus::app::batch::Refinement::from_name(mode)
         .unwrap_or_else(|| panic!("--refine {mode}: use always, near-limits or never"))
 }
 
-fn refinement() -> tonus::batch::Refinement {
+fn refinement() -> tonus::app::batch::Refinement {
     refinement_of(&mode_arg())
 }
 

@@ -7,12 +7,12 @@
 //! Run: `cargo run --release --example fit_accuracy`
 
 use std::path::Path;
-use tonus::membrane::{Point, Shape};
-use tonus::panel::Panel;
-use tonus::pipeline::{measure_with, FitOptions};
-use tonus::recording::Recording;
-use tonus::synth::{synthesise, Rng, SynthConfig};
-use tonus::units::{KgPerM2, Meters, NewtonsPerMeter};
+use tonus::base::units::{KgPerM2, Meters, NewtonsPerMeter};
+use tonus::fitting::pipeline::{measure_with, FitOptions};
+use tonus::physics::membrane::{Point, Shape};
+use tonus::physics::panel::Panel;
+use tonus::physics::synth::{synthesise, Rng, SynthConfig};
+use tonus::signal::recording::Recording;
 
 fn main() {
     let trials = 40;
@@ -86,7 +86,7 @@ fn main() {
                 let m =
                     measure_with(&rec, &panel, &FitOptions::default(), &mut planner).expect("fit");
                 match m.tension {
-                    Some(t) if m.quality.grade <= tonus::quality::Grade::Fair => {
+                    Some(t) if m.quality.grade <= tonus::fitting::quality::Grade::Fair => {
                         let e = t.value / t_true - 1.0;
                         if e.abs() > 0.02 {
                             wrong += 1;

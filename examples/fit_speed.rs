@@ -5,12 +5,12 @@
 
 use std::path::Path;
 use std::time::Instant;
-use tonus::membrane::{Point, Shape};
-use tonus::panel::Panel;
-use tonus::pipeline::{measure_with, FitOptions};
-use tonus::recording::Recording;
-use tonus::synth::{synthesise, SynthConfig};
-use tonus::units::{KgPerM2, Meters, NewtonsPerMeter};
+use tonus::base::units::{KgPerM2, Meters, NewtonsPerMeter};
+use tonus::fitting::pipeline::{measure_with, FitOptions};
+use tonus::physics::membrane::{Point, Shape};
+use tonus::physics::panel::Panel;
+use tonus::physics::synth::{synthesise, SynthConfig};
+use tonus::signal::recording::Recording;
 
 fn median(mut v: Vec<f64>) -> f64 {
     v.sort_by(f64::total_cmp);
@@ -91,7 +91,7 @@ fn main() {
         let mut partial_times = Vec::new();
         for _ in 0..runs {
             let t0 = Instant::now();
-            let a = tonus::partials::analyse_with(&rec, &opts.analysis, &mut planner)
+            let a = tonus::signal::partials::analyse_with(&rec, &opts.analysis, &mut planner)
                 .expect("analysis");
             partial_times.push(t0.elapsed().as_secs_f64() * 1e3);
             std::hint::black_box(a);
@@ -101,7 +101,7 @@ fn main() {
         let mut fft_times = Vec::new();
         for _ in 0..runs {
             let t0 = Instant::now();
-            let s = tonus::spectrum::compute(span, None, 48000.0, &mut planner);
+            let s = tonus::signal::spectrum::compute(span, None, 48000.0, &mut planner);
             fft_times.push(t0.elapsed().as_secs_f64() * 1e3);
             std::hint::black_box(s);
         }

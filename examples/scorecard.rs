@@ -1,5 +1,5 @@
 //! Runs `tonus fit`'s code path on every `<id>/rec.wav` of a corpus folder
-//! and prints the scorecard (`tonus::scorecard`).
+//! and prints the scorecard (`tonus::app::scorecard`).
 //!
 //! `cargo run --release --example scorecard -- [DIR] [--with-tap] [--each] [--json]
 //! [--scale-width F] [--scale-height F]` (the entered sides multiplied by F,
@@ -37,7 +37,7 @@ fn main() -> ExitCode {
             other => dir = PathBuf::from(other),
         }
     }
-    match tonus::scorecard::run_scaled(&dir, with_tap, scale) {
+    match tonus::app::scorecard::run_scaled(&dir, with_tap, scale) {
         Ok(card) => {
             if json {
                 println!(

@@ -41,7 +41,7 @@ fn main() -> ExitCode {
     cases.sort();
     let mut times: Vec<(f64, String)> = Vec::new();
     for case in &cases {
-        let Ok(args) = tonus::scorecard::fit_args(case) else {
+        let Ok(args) = tonus::app::scorecard::fit_args(case) else {
             eprintln!("skipped {}: unreadable truth.json", case.display());
             continue;
         };

@@ -1,53 +1,26 @@
 //! tonus: membrane tension from the tap tone.
 //!
-//! Data flow: [`recording`] reads a WAV file → [`tap`] finds the tap and the
-//! span to analyse → [`spectrum`] and [`partials`] measure the partials →
-//! [`membrane`] predicts the mode lines → [`matching`] assigns partials to
-//! modes → [`fit`] fits the wave speed and tension → [`report`] writes the
-//! results. [`synth`] makes test and demo recordings by modal synthesis.
+//! The crate is built in layers, each a folder that imports only from
+//! itself and the layers below (checked by `tests/layers.rs`):
+//! [`base`] → [`signal`] and [`physics`] → [`fitting`] → [`acceptance`] →
+//! [`report`] → [`app`] → `main`.
+//!
+//! Data flow: [`signal::recording`] reads the audio → [`signal::tap`]
+//! finds the tap and the span to analyse → [`signal::spectrum`] and
+//! [`signal::partials`] measure the partials → [`physics::membrane`]
+//! predicts the mode lines → [`fitting::matching`] assigns partials to
+//! modes → [`fitting::pipeline`] fits the wave speed and tension in named
+//! stages → [`acceptance::decision`] decides against a specification →
+//! [`report`] writes the results. [`physics::synth`] makes test and demo
+//! recordings by modal synthesis.
 
-pub mod airload;
-pub mod aspect;
-pub mod batch;
-pub mod bessel;
-pub mod biaxial;
-pub mod budget;
-pub mod calibration;
-pub mod cli;
-pub mod commands;
-pub mod crlb;
-pub mod decision;
-pub mod diagnosis;
-pub mod error;
-pub mod estimator;
-pub mod evenness;
-pub mod fit;
-pub mod history;
-pub mod identifiability;
-pub mod lug_advice;
-pub mod matching;
-pub mod membrane;
-pub mod panel;
-pub mod partials;
-pub mod pipeline;
-pub mod plate;
-pub mod quality;
-pub mod recording;
+pub mod acceptance;
+pub mod app;
+pub mod base;
+pub mod fitting;
+pub mod physics;
 pub mod report;
-pub mod round;
-pub mod round_cmd;
-pub mod round_png;
-pub mod round_report;
-pub mod scorecard;
-pub mod spec;
-pub mod spectrum;
-pub mod stats;
-pub mod stream;
-pub mod synth;
-pub mod tap;
-pub mod taps;
-pub mod units;
-pub mod warning;
+pub mod signal;
 
 /// Keeps freed memory in the process, for a program that analyses many
 /// recordings: by default glibc hands large buffers (every recording's

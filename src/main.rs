@@ -4,9 +4,9 @@
 
 use clap::Parser;
 use std::process::ExitCode;
-use tonus::cli::{self, Cli, Command};
-use tonus::commands::{self, Outcome};
-use tonus::error::Result;
+use tonus::app::cli::{self, Cli, Command};
+use tonus::app::commands::{self, Outcome};
+use tonus::base::error::Result;
 
 fn run(cli: Cli) -> Result<Outcome> {
     match cli.command {
@@ -30,7 +30,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             &recording,
             input.channel()?,
             &panel.to_panel()?,
-            &tonus::pipeline::FitOptions {
+            &tonus::fitting::pipeline::FitOptions {
                 calibration: calibration
                     .as_deref()
                     .map(cli::load_calibration)
@@ -142,7 +142,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             )
         }
         Command::Demo { recordings, out } => commands::demo(&recordings, &out),
-        Command::Round(args) => tonus::round_cmd::run(&args, &mut print_line),
+        Command::Round(args) => tonus::app::round::run(&args, &mut print_line),
         Command::Inspect {
             spec,
             inputs,
@@ -158,11 +158,11 @@ fn run(cli: Cli) -> Result<Outcome> {
             refine,
             peaks_only,
         } => {
-            let spec = tonus::spec::Spec::from_file(&spec)?;
+            let spec = tonus::acceptance::spec::Spec::from_file(&spec)?;
             // Ctrl-C and SIGTERM finish the recordings in flight and write
             // the outputs and the report.
-            tonus::batch::stop_on_signals()?;
-            let opts = tonus::batch::InspectOptions {
+            tonus::app::batch::stop_on_signals()?;
+            let opts = tonus::app::batch::InspectOptions {
                 out,
                 history: (!no_history).then_some(history),
                 station,
@@ -171,7 +171,7 @@ fn run(cli: Cli) -> Result<Outcome> {
                 refinement: cli::refinement(&refine, peaks_only)?,
             };
             match watch {
-                Some(dir) => tonus::batch::watch(
+                Some(dir) => tonus::app::batch::watch(
                     &spec,
                     &opts,
                     &cli::watch_options(
@@ -183,9 +183,9 @@ fn run(cli: Cli) -> Result<Outcome> {
                     &mut print_line,
                     &mut |l| eprintln!("{l}"),
                 ),
-                None => tonus::batch::inspect(
+                None => tonus::app::batch::inspect(
                     &spec,
-                    &tonus::batch::expand_inputs(&inputs)?,
+                    &tonus::app::batch::expand_inputs(&inputs)?,
                     &opts,
                     &mut print_line,
                 ),
@@ -199,13 +199,13 @@ fn run(cli: Cli) -> Result<Outcome> {
             decision,
             csv,
         } => {
-            let filter = tonus::history::Filter {
+            let filter = tonus::acceptance::history::Filter {
                 spec_name: spec,
                 since: since
-                    .map(|t| tonus::history::UtcTime::parse("--since", &t))
+                    .map(|t| tonus::base::time::UtcTime::parse("--since", &t))
                     .transpose()?,
                 until: until
-                    .map(|t| tonus::history::UtcTime::parse("--until", &t))
+                    .map(|t| tonus::base::time::UtcTime::parse("--until", &t))
                     .transpose()?,
                 decision,
             };

@@ -1,6 +1,6 @@
 //! Calibration through the binary (issue 4): a synthetic air-loaded head
 //! (`tonus synth --air`, whose mode ratios are shifted by the fixed
-//! pattern of `tonus::airload`) calibrated at one tension and measured at
+//! pattern of `tonus::physics::airload`) calibrated at one tension and measured at
 //! another recovers the second tension within 1 % with the ideal model and
 //! the calibration, while the ideal model alone is far off.
 

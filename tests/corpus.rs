@@ -7,7 +7,7 @@
 
 use std::path::PathBuf;
 use std::process::Command;
-use tonus::scorecard::{self, CaseScore, Expect, Scorecard};
+use tonus::app::scorecard::{self, CaseScore, Expect, Scorecard};
 
 fn corpus_dir() -> PathBuf {
     let dir = std::env::var_os("TONUS_CORPUS")

@@ -1,6 +1,6 @@
 //! Independent numerical check of the split of the (1,1) pair of a disk
 //! under uniform biaxial stress, Txx = T(1+ε), Tyy = T(1−ε), ε = 0.02
-//! (the perturbation result of `tonus::evenness`: f = f₀·√(1 ± ε/2),
+//! (the perturbation result of `tonus::physics::evenness`: f = f₀·√(1 ± ε/2),
 //! 0.994987 and 1.004988 of the isotropic value, split ε/2).
 //!
 //! The eigenproblem −((1+ε)∂²/∂x² + (1−ε)∂²/∂y²)u = λu on the unit disk
@@ -185,7 +185,7 @@ fn disk_pair_split_matches_perturbation_theory() {
     let results: Vec<(f64, f64, f64)> = grids.iter().map(|&m| pair_ratios(m)).collect();
     // j₁,₁² = 14.6820 (j₁,₁ = 3.831706, DLMF Table 10.21.1): the isotropic
     // eigenvalue of the unit disk converges to it (staircase error O(h)).
-    let j11 = tonus::bessel::bessel_zero(1, 1);
+    let j11 = tonus::physics::bessel::bessel_zero(1, 1);
     for (m, (iso, hi, lo)) in grids.iter().zip(&results) {
         eprintln!(
             "{m} cells/radius: λ_iso {iso:.5} (j11² {:.5}), cos member {hi:.6}, sin member {lo:.6}, split {:.6}",
@@ -223,7 +223,7 @@ fn disk_pair_split_matches_perturbation_theory() {
     assert!(((hi - lo) / (EPS / 2.0) - 1.0).abs() < 0.01, "{}", hi - lo);
     // The inversion used by circle_evenness returns ε to within 0.01
     // percentage points of the 2 % put in.
-    let e = tonus::evenness::circle_evenness(&[tonus::evenness::PairInput::new(
+    let e = tonus::physics::evenness::circle_evenness(&[tonus::physics::evenness::PairInput::new(
         1, 1, lo, 1e-6, hi, 1e-6,
     )])
     .unwrap();

@@ -1,6 +1,6 @@
 //! Independent numerical check of the rectangular-membrane model.
 //!
-//! `tonus::membrane::rect_mode_frequency_hz` implements the closed form
+//! `tonus::physics::membrane::rect_mode_frequency_hz` implements the closed form
 //! f_mn = (c/2)·sqrt((m/Lx)² + (n/Ly)²). Here the same eigenproblem,
 //! −∇²u = λu on an Lx × Ly rectangle with u = 0 on the edge, is solved
 //! numerically instead: a 5-point finite-difference Laplacian on a uniform grid,
@@ -37,7 +37,7 @@
 use nalgebra::{DMatrix, SymmetricEigen};
 use std::f64::consts::PI;
 use std::time::Instant;
-use tonus::membrane::rect_mode_frequency_hz;
+use tonus::physics::membrane::rect_mode_frequency_hz;
 
 const LX: f64 = 0.4; // width, m (x direction)
 const LY: f64 = 0.3; // height, m (y direction)

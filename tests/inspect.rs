@@ -487,8 +487,10 @@ fn killed_mid_batch_keeps_every_completed_row() {
         .unwrap();
     assert_eq!(check, "ok");
     drop(conn);
-    let h = tonus::history::History::open(&db).unwrap();
-    let rows = h.query(&tonus::history::Filter::default()).unwrap();
+    let h = tonus::acceptance::history::History::open(&db).unwrap();
+    let rows = h
+        .query(&tonus::acceptance::history::Filter::default())
+        .unwrap();
     assert!(!rows.is_empty());
     assert!(
         rows.len() < BIG_BATCH,
@@ -793,8 +795,10 @@ fn biaxial_spec_decides_anisotropy_on_both_sides_of_the_limit() {
     assert_eq!(recs[2]["decision"]["anisotropy"]["limit_percent"], 5.0);
     assert_eq!(recs[2]["spec"]["model"], "biaxial");
     // The history keeps the anisotropy.
-    let h = tonus::history::History::open(&db).unwrap();
-    let stored = h.query(&tonus::history::Filter::default()).unwrap();
+    let h = tonus::acceptance::history::History::open(&db).unwrap();
+    let stored = h
+        .query(&tonus::acceptance::history::Filter::default())
+        .unwrap();
     assert_eq!(stored.len(), 3);
     // Rows are stored as decided; recordings run in parallel, so find the
     // third by its path.

@@ -25,7 +25,7 @@
 //! between cell centres) against cos(θ − θ₀) for the upper member and
 //! sin(θ − θ₀) for the lower; and the members' amplitudes at eight lug
 //! angles, with a microphone at (0.45, 200°), fed to
-//! `tonus::round::orientation`, which must return θ₀.
+//! `tonus::fitting::round::orientation`, which must return θ₀.
 
 use nalgebra::{DMatrix, SymmetricEigen};
 
@@ -391,7 +391,7 @@ fn turned_stress_members_follow_the_angle_model() {
     let mic = 200.0;
     let p_up = at(&r.upper.1, 0.45, mic);
     let p_lo = at(&r.lower.1, 0.45, mic);
-    let lugs = tonus::round::lug_angles(8, 10.0, false);
+    let lugs = tonus::fitting::round::lug_angles(8, 10.0, false);
     let points: Vec<(usize, f64, f64)> = lugs
         .iter()
         .map(|&phi| {
@@ -400,7 +400,7 @@ fn turned_stress_members_follow_the_angle_model() {
             (0, phi, a_lo.atan2(a_up).to_degrees())
         })
         .collect();
-    let (alpha, u, g, rms) = tonus::round::orientation(1, 1, &points).unwrap();
+    let (alpha, u, g, rms) = tonus::fitting::round::orientation(1, 1, &points).unwrap();
     // The pickup ratio g = P_lo/P_up of the model is the ratio of the
     // members' shapes at the microphone, normalised like the members at
     // the taps (same radius function for both: the ratio of their ring

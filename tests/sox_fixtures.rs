@@ -8,8 +8,8 @@
 //! so its true frequency is exactly the one given to `synth`.
 
 use std::path::PathBuf;
-use tonus::partials::{analyse, AnalysisConfig, Partial};
-use tonus::recording::{read_audio, read_wav, ChannelChoice, Recording, SampleFormat};
+use tonus::signal::partials::{analyse, AnalysisConfig, Partial};
+use tonus::signal::recording::{read_audio, read_wav, ChannelChoice, Recording, SampleFormat};
 
 /// Tolerance on every frequency, Hz.
 const FREQ_TOL_HZ: f64 = 0.02;
@@ -597,7 +597,7 @@ fn format_is_told_by_content() {
 /// beside `.wav` ones.
 #[test]
 fn folder_scan_takes_flac_and_aiff() {
-    let files = tonus::batch::expand_inputs(&[fixture("")]).unwrap();
+    let files = tonus::app::batch::expand_inputs(&[fixture("")]).unwrap();
     let names: Vec<String> = files
         .iter()
         .map(|p| p.file_name().unwrap().to_string_lossy().into_owned())

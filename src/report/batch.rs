@@ -11,7 +11,7 @@
 //! - the tension in recording order on an individuals chart with its
 //!   moving-range chart: centre x̄, control limits x̄ ± 3·MR̄/d₂
 //!   (NIST/SEMATECH e-Handbook of Statistical Methods §6.3.2.2; computed in
-//!   [`crate::stats`]);
+//!   [`crate::acceptance::stats`]);
 //! - Cp, Cpk (σ̂ = MR̄/d₂) and Pp, Ppk (σ = s), with their formulas
 //!   (e-Handbook §6.1.6);
 //! - the anisotropy distribution where the model measures it (biaxial),
@@ -49,8 +49,8 @@ use plotters::element::DashedPathElement;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
-use crate::error::{Result, TonusError};
-use crate::stats;
+use crate::acceptance::stats;
+use crate::base::error::{Result, TonusError};
 
 /// One recording of the batch, as the report needs it.
 #[derive(Debug, Clone, Default)]
@@ -1651,7 +1651,7 @@ pub fn write_batch_report(dir: &Path, s: &BatchSummary) -> Result<Vec<PathBuf>> 
     let mut written = Vec::new();
     for (name, png, _) in &pics.items {
         let p = dir.join(name);
-        super::write_atomic(&p, png)?;
+        crate::base::files::write_atomic(&p, png)?;
         written.push(p);
     }
     // Pictures from an earlier batch that this one does not have (no
@@ -1667,10 +1667,10 @@ pub fn write_batch_report(dir: &Path, s: &BatchSummary) -> Result<Vec<PathBuf>> 
         }
     }
     let md = dir.join(MARKDOWN_NAME);
-    super::write_atomic(&md, markdown_with(s, &pics).as_bytes())?;
+    crate::base::files::write_atomic(&md, markdown_with(s, &pics).as_bytes())?;
     written.push(md);
     let html = dir.join(HTML_NAME);
-    super::write_atomic(&html, html_with(s, &pics).as_bytes())?;
+    crate::base::files::write_atomic(&html, html_with(s, &pics).as_bytes())?;
     written.push(html);
     Ok(written)
 }
@@ -1734,7 +1734,7 @@ impl Spool {
     /// is then left as it was.
     pub fn publish(&mut self) -> Result<()> {
         self.file.flush().map_err(|e| self.err(e))?;
-        let tmp = super::temp_path(&self.path);
+        let tmp = crate::base::files::temp_path(&self.path);
         let done =
             std::fs::copy(&self.spool_path, &tmp).and_then(|_| std::fs::rename(&tmp, &self.path));
         if let Err(e) = done {

@@ -39,11 +39,11 @@
 //! `t60_s`, `level_db`}), `splitting_hz`, `splitting_u_hz`,
 //! `splitting_cents`, `splitting_u_cents`}.
 
-use crate::fit::Estimate;
-use crate::membrane::Shape;
-use crate::partials::{Partial, PartialAnalysis};
-use crate::pipeline::Measurement;
-use crate::units::TensionUnit;
+use crate::base::estimate::Estimate;
+use crate::base::units::TensionUnit;
+use crate::fitting::pipeline::Measurement;
+use crate::physics::membrane::Shape;
+use crate::signal::partials::{Partial, PartialAnalysis};
 use serde_json::{json, Value};
 use std::path::Path;
 
@@ -93,7 +93,7 @@ fn tap_json(a: &PartialAnalysis) -> Value {
     })
 }
 
-fn warnings_json(ws: &[crate::warning::Warning]) -> Value {
+fn warnings_json(ws: &[crate::base::warning::Warning]) -> Value {
     Value::Array(
         ws.iter()
             .map(|w| {

@@ -2,8 +2,8 @@
 
 use super::json::CAUTION;
 use super::text::pm;
-use crate::pipeline::Measurement;
-use crate::units::TensionUnit;
+use crate::base::units::TensionUnit;
+use crate::fitting::pipeline::Measurement;
 use std::fmt::Write;
 use std::path::Path;
 
@@ -179,7 +179,7 @@ pub fn fit_report(
                 ));
             }
             let small = |v: Option<f64>| {
-                v.map(|x| crate::units::sig(x, 2))
+                v.map(|x| crate::base::units::sig(x, 2))
                     .unwrap_or_else(|| "–".into())
             };
             let _ = writeln!(

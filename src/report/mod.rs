@@ -8,52 +8,19 @@
 pub mod batch;
 pub mod png;
 
+use crate::base::files::write_atomic;
 use std::path::{Path, PathBuf};
-
-/// Temporary sibling path used for atomic writes: `NAME.part-PID-N`, unique
-/// per process and call, so two processes writing the same output never
-/// rename each other's half-written file.
-pub fn temp_path(p: &Path) -> PathBuf {
-    use std::sync::atomic::{AtomicU64, Ordering};
-    static COUNTER: AtomicU64 = AtomicU64::new(0);
-    let mut s = p.as_os_str().to_owned();
-    s.push(format!(
-        ".part-{}-{}",
-        std::process::id(),
-        COUNTER.fetch_add(1, Ordering::Relaxed)
-    ));
-    PathBuf::from(s)
-}
 
 pub mod csv;
 pub mod json;
 pub mod markdown;
+pub mod round;
+pub mod round_png;
 pub mod text;
 
-use crate::error::{Result, TonusError};
-use crate::pipeline::Measurement;
-use crate::units::TensionUnit;
-
-/// Writes `bytes` to `path` atomically (temporary sibling, then rename).
-///
-/// # Errors
-/// When the directory is not writable or the disk is full; the temporary
-/// file is removed.
-pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    let tmp = temp_path(path);
-    let err = |e: std::io::Error| TonusError::Write {
-        path: path.to_path_buf(),
-        reason: e.to_string(),
-    };
-    if let Err(e) = std::fs::write(&tmp, bytes) {
-        let _ = std::fs::remove_file(&tmp);
-        return Err(err(e));
-    }
-    std::fs::rename(&tmp, path).map_err(|e| {
-        let _ = std::fs::remove_file(&tmp);
-        err(e)
-    })
-}
+use crate::base::error::{Result, TonusError};
+use crate::base::units::TensionUnit;
+use crate::fitting::pipeline::Measurement;
 
 /// The picture's data, taken from a measurement.
 pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::SpectrumPlot {
@@ -107,11 +74,11 @@ pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::Sp
             }
             let hit = assigned.iter().find(|(line, _)| *line == j);
             lines.push(png::PlotLine {
-                frequency_hz: crate::fit::predicted_hz(f, l.factor, l.labels[0]),
+                frequency_hz: crate::fitting::fit::predicted_hz(f, l.factor, l.labels[0]),
                 label: l.label_text(),
                 matched: hit.is_some(),
                 residual_cents: hit.map(|h| h.1),
-                expected_weak: l.coupling < crate::matching::WEAK_COUPLING,
+                expected_weak: l.coupling < crate::fitting::matching::WEAK_COUPLING,
             });
         }
     }

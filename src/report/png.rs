@@ -30,7 +30,7 @@ use plotters::element::DashedPathElement;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
-use crate::error::TonusError;
+use crate::base::error::TonusError;
 
 /// Everything the spectrum picture shows.
 pub struct SpectrumPlot {
@@ -171,7 +171,7 @@ pub fn write_png(path: &Path, plot: &SpectrumPlot) -> Result<(), TonusError> {
     validate(plot).map_err(fail)?;
     let rgb = render_rgb(plot).map_err(fail)?;
 
-    let tmp: PathBuf = crate::report::temp_path(path);
+    let tmp: PathBuf = crate::base::files::temp_path(path);
     let written = encode_png(&tmp, &rgb).and_then(|()| {
         std::fs::rename(&tmp, path)
             .map_err(|e| format!("renaming {} into place: {e}", tmp.display()))
@@ -710,7 +710,7 @@ fn draw_decay_panel(area: &Area<'_>, plot: &SpectrumPlot) -> Result<(), String> 
         .build_cartesian_2d(0.0..x_max, (lo..hi).log_scale())
         .map_err(draw_err)?;
     let x_fmt = |v: &f64| format!("{v:.0}");
-    let y_fmt = |v: &f64| crate::units::sig(*v, 2);
+    let y_fmt = |v: &f64| crate::base::units::sig(*v, 2);
     chart
         .configure_mesh()
         .x_labels(14)
@@ -784,7 +784,7 @@ fn draw_decay_panel(area: &Area<'_>, plot: &SpectrumPlot) -> Result<(), String> 
         for &(f, d, a, b) in &pairs {
             let at = (f, (a * b).sqrt().clamp(lo, hi));
             let (x, y) = chart.backend_coord(&at);
-            let text = format!("pair, {} Hz apart", crate::units::sig(d, 2));
+            let text = format!("pair, {} Hz apart", crate::base::units::sig(d, 2));
             let w = 7 * text.len() as i32;
             if used.claim((x + 6, y - 7, x + 6 + w, y + 7)) {
                 // Anchored at the pair in chart coordinates (the backend
@@ -1095,7 +1095,7 @@ mod tests {
         let bytes = std::fs::read(&path).expect("png readable");
         assert_eq!(png_size(&bytes), (WIDTH_PX, HEIGHT_PX));
         assert_eq!(&bytes[bytes.len() - 8..bytes.len() - 4], b"IEND");
-        assert!(!crate::report::temp_path(&path).exists());
+        assert!(!crate::base::files::temp_path(&path).exists());
         let names: Vec<_> = std::fs::read_dir(dir.path())
             .expect("list dir")
             .map(|e| e.expect("entry").file_name())
@@ -1134,7 +1134,7 @@ mod tests {
             matches!(err, TonusError::Write { path: ref p, .. } if p == &path),
             "{err}"
         );
-        assert!(!crate::report::temp_path(&path).exists());
+        assert!(!crate::base::files::temp_path(&path).exists());
     }
 
     #[test]

@@ -1,8 +1,8 @@
 //! The terminal table.
 
-use crate::partials::PartialAnalysis;
-use crate::pipeline::Measurement;
-use crate::units::{sig, TensionUnit};
+use crate::base::units::{sig, TensionUnit};
+use crate::fitting::pipeline::Measurement;
+use crate::signal::partials::PartialAnalysis;
 use std::fmt::Write;
 use std::path::Path;
 
@@ -57,7 +57,7 @@ pub fn partials_table(file: &Path, a: &PartialAnalysis) -> String {
 }
 
 /// One indented line describing a split pair.
-pub fn pair_line(pair: &crate::partials::SplitPair) -> String {
+pub fn pair_line(pair: &crate::signal::partials::SplitPair) -> String {
     format!(
         "{:>13}split pair: {} and {}, splitting {} ({}), T60 {} s and {} s",
         "",
@@ -112,7 +112,7 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                         b.combined_standard_uncertainty_n_per_m / k,
                         unit.symbol()
                     ),
-                    crate::units::sig(b.expanded_uncertainty_n_per_m / k, 3),
+                    crate::base::units::sig(b.expanded_uncertainty_n_per_m / k, 3),
                     unit.symbol(),
                     b.coverage_factor
                 );
@@ -164,8 +164,8 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                     s,
                     "  calibrated   {} (reference {} ± {} N/m, made {})",
                     c.file,
-                    crate::units::sig(c.reference_tension_n_per_m, 5),
-                    crate::units::sig(c.reference_tension_u_n_per_m, 3),
+                    crate::base::units::sig(c.reference_tension_n_per_m, 5),
+                    crate::base::units::sig(c.reference_tension_u_n_per_m, 3),
                     c.created
                 );
             }
@@ -317,7 +317,7 @@ pub fn fit_table(file: &Path, m: &Measurement, unit: TensionUnit) -> String {
                 "  combined     {}  repeatability (s) {}",
                 pm(c.value, c.standard_uncertainty, t.unit),
                 t.repeatability
-                    .map(|r| format!("{} {}", crate::units::sig(r, 3), t.unit))
+                    .map(|r| format!("{} {}", crate::base::units::sig(r, 3), t.unit))
                     .unwrap_or_else(|| "–".into())
             );
         }

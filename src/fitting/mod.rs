@@ -1,0 +1,18 @@
+//! From partials to a tension: mode labelling, the fits, the biaxial and
+//! aspect checks, identifiability, calibration, the uncertainty budget,
+//! the grade, and the measurement as named stages. It takes no decision
+//! against a specification and writes no file.
+
+pub mod aspect;
+pub mod biaxial;
+pub mod budget;
+pub mod calibration;
+pub mod diagnosis;
+pub mod fit;
+pub mod identifiability;
+pub mod matching;
+pub mod pipeline;
+pub mod plate_fit;
+pub mod quality;
+pub mod round;
+pub mod taps;
