@@ -4,8 +4,9 @@
 
 use clap::Parser;
 use std::process::ExitCode;
-use tonus::app::cli::{self, Cli, Command};
+use tonus::app::cli::{Cli, Command};
 use tonus::app::commands::{self, Outcome};
+use tonus::app::options;
 use tonus::base::error::Result;
 
 fn run(cli: Cli) -> Result<Outcome> {
@@ -30,15 +31,15 @@ fn run(cli: Cli) -> Result<Outcome> {
             &recording,
             input.channel()?,
             &panel.to_panel()?,
-            &tonus::fitting::pipeline::FitOptions {
+            &tonus::fitting::measurement::FitOptions {
                 calibration: calibration
                     .as_deref()
-                    .map(cli::load_calibration)
+                    .map(options::load_calibration)
                     .transpose()?
                     .map(std::sync::Arc::new),
                 // A calibration replaces the panel file's model; only a
                 // --model flag given with it is refused.
-                ..cli::fit_options(
+                ..options::fit_options(
                     free_aspect,
                     model.as_deref().or(if calibration.is_none() {
                         panel.to_spec()?.model
@@ -50,7 +51,7 @@ fn run(cli: Cli) -> Result<Outcome> {
                 )?
             },
             &commands::OutputOptions {
-                unit: cli::tension_unit(&tension_unit)?,
+                unit: options::tension_unit(&tension_unit)?,
                 as_json: json,
                 out,
                 picture: !no_picture,
@@ -68,7 +69,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             tension.as_deref(),
             fundamental.as_deref(),
             count,
-            cli::tension_unit(&tension_unit)?,
+            options::tension_unit(&tension_unit)?,
             json,
         ),
         Command::Synth {
@@ -94,7 +95,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             bending_stiffness,
             tension_skew,
         } => {
-            let cfg = cli::synth_config(
+            let cfg = options::synth_config(
                 &panel,
                 &tension,
                 snr,
@@ -115,7 +116,7 @@ fn run(cli: Cli) -> Result<Outcome> {
                 bending_stiffness,
                 tension_skew.as_deref(),
             )?;
-            let (b, float) = cli::sample_format(&bits)?;
+            let (b, float) = options::sample_format(&bits)?;
             commands::synth(&cfg, &output, b, float)
         }
         Command::Calibrate {
@@ -128,7 +129,7 @@ fn run(cli: Cli) -> Result<Outcome> {
             out,
         } => {
             let (opts, t, u) =
-                cli::calibrate_options(model.as_deref(), &tension, &tension_u, &input)?;
+                options::calibrate_options(model.as_deref(), &tension, &tension_u, &input)?;
             commands::calibrate(
                 &recordings,
                 input.channel()?,
@@ -164,13 +165,13 @@ fn run(cli: Cli) -> Result<Outcome> {
                 station,
                 operator,
                 progress: true,
-                refinement: cli::refinement(&refine, peaks_only)?,
+                refinement: options::refinement(&refine, peaks_only)?,
             };
             match watch {
                 Some(dir) => tonus::app::batch::watch(
                     &spec,
                     &opts,
-                    &cli::watch_options(
+                    &options::watch_options(
                         dir,
                         watch_interval.as_deref(),
                         watch_limit,

@@ -7,8 +7,8 @@
 //! groups `{…}` expanded) and every `super::…` path, in the code before a
 //! file's `#[cfg(test)]` (a module's own tests may reach up, say to make
 //! a recording with `synth`). A path is resolved to the longest prefix
-//! that names a module file, so `crate::fitting::pipeline::Measurement`
-//! is an edge to `src/fitting/pipeline.rs` (or its folder's `mod.rs`).
+//! that names a module file, so `crate::fitting::measurement::Measurement`
+//! is an edge to `src/fitting/measurement.rs` (or its folder's `mod.rs`).
 //!
 //! Run alone: `cargo test --release --test layers -- --nocapture`.
 

@@ -66,6 +66,7 @@ use crate::acceptance::decision::{Decision, DecisionInput};
 use crate::acceptance::history::{History, RecordingContext, Row};
 use crate::acceptance::spec::Spec;
 use crate::app::commands::Outcome;
+use crate::app::options::{Refinement, WatchOptions};
 use crate::base::error::{Result, TonusError};
 use crate::base::estimate::Estimate;
 use crate::base::hash::sha256_hex;
@@ -90,13 +91,6 @@ pub const FLUSH_EVERY: usize = 64;
 /// Shortest time between two publications of the CSV and JSON Lines files
 /// during a batch (each publication copies the whole file).
 pub const FLUSH_INTERVAL: Duration = Duration::from_secs(1);
-/// Default poll interval of the watch mode, s.
-pub const WATCH_INTERVAL_DEFAULT_S: f64 = 0.5;
-/// Shortest poll interval allowed, s.
-pub const WATCH_INTERVAL_MIN_S: f64 = 0.05;
-/// Longest poll interval allowed, s.
-pub const WATCH_INTERVAL_MAX_S: f64 = 10.0;
-
 /// The signal that asked the batch to stop (0: none yet).
 static STOP_SIGNAL: AtomicI32 = AtomicI32::new(0);
 
@@ -185,51 +179,6 @@ pub struct InspectOptions {
     pub refinement: Refinement,
 }
 
-/// Which recordings of a batch get the damped-sinusoid refinement
-/// ([`crate::signal::partials::refine`]) on top of the FFT peaks.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-pub enum Refinement {
-    /// Every recording: per-mode frequency uncertainties, Cramér–Rao
-    /// bounds, decays with uncertainty and split pairs in every record
-    /// (about twice the time per recording).
-    Always,
-    /// A recording is measured on its FFT peaks first, and measured again
-    /// with the refinement when its decision is not settled: when moving
-    /// the tension (or anisotropy) by [`NEAR_LIMIT_FIT_U`] times the
-    /// fit's own standard uncertainty either way changes the decision, or
-    /// it is not measured, or the specification limits the unevenness
-    /// (which needs the split pairs only the refinement resolves). The
-    /// refinement moves a tension by about one such uncertainty, so it
-    /// cannot change the decision of a settled recording; each record says
-    /// which method it carries.
-    #[default]
-    NearLimits,
-    /// Never: FFT peaks only.
-    Never,
-}
-
-impl Refinement {
-    /// The name on the command line: `always`, `near-limits`, `never`.
-    pub fn name(self) -> &'static str {
-        match self {
-            Refinement::Always => "always",
-            Refinement::NearLimits => "near-limits",
-            Refinement::Never => "never",
-        }
-    }
-
-    /// Parses a name of [`Refinement::name`].
-    pub fn from_name(name: &str) -> Option<Refinement> {
-        [
-            Refinement::Always,
-            Refinement::NearLimits,
-            Refinement::Never,
-        ]
-        .into_iter()
-        .find(|r| r.name() == name)
-    }
-}
-
 /// A decision is settled when it stays the same with the tension (and the
 /// anisotropy, where measured) moved this many of the fit's own standard
 /// uncertainties either way ([`Refinement::NearLimits`]). The refined and
@@ -289,19 +238,6 @@ pub fn decision_is_settled(spec: &Spec, m: &pipeline::Measurement) -> bool {
         )
     });
     tension_ok && anisotropy_ok
-}
-
-/// How the watch mode polls and when it stops.
-#[derive(Debug, Clone)]
-pub struct WatchOptions {
-    /// The folder recordings land in.
-    pub dir: PathBuf,
-    /// Time between two listings.
-    pub interval: Duration,
-    /// Stop after this many recordings (None: no limit).
-    pub limit: Option<usize>,
-    /// Stop after this long (None: run until stopped).
-    pub timeout: Option<Duration>,
 }
 
 /// Seconds spent in each stage of a batch; the parallel stages are summed

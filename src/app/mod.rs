@@ -4,4 +4,5 @@
 pub mod batch;
 pub mod cli;
 pub mod commands;
+pub mod options;
 pub mod scorecard;
