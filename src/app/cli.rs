@@ -25,230 +25,262 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// List the partials of a tap recording (frequency, level, SNR, decay).
-    Partials {
-        /// The recording (WAV, FLAC or AIFF).
-        recording: PathBuf,
-        #[command(flatten)]
-        input: InputArgs,
-        /// Print one JSON object instead of the table.
-        #[arg(long)]
-        json: bool,
-    },
+    Partials(PartialsArgs),
     /// Fit the tension of a membrane to a tap recording.
-    Fit {
-        /// The recording (WAV, FLAC or AIFF).
-        recording: PathBuf,
-        #[command(flatten)]
-        panel: PanelArgs,
-        #[command(flatten)]
-        input: InputArgs,
-        /// Also fit the rectangle's effective height (width as given).
-        #[arg(long)]
-        free_aspect: bool,
-        /// Model: isotropic (default), free-aspect, biaxial (rectangle, Tx and Ty), stiff (rectangle: tension and bending stiffness), air (air-loaded membrane).
-        #[arg(long)]
-        model: Option<String>,
-        /// Unit for the printed tension: N/m, N/cm, kN/m, lbf/in.
-        #[arg(long, default_value = "N/m")]
-        tension_unit: String,
-        /// Print one JSON object instead of the table.
-        #[arg(long)]
-        json: bool,
-        /// Write report, JSON, CSV and spectrum PNG into this folder.
-        #[arg(long)]
-        out: Option<PathBuf>,
-        /// With --out, skip the PNG.
-        #[arg(long)]
-        no_picture: bool,
-        /// Calibration file from `tonus calibrate`: fit against the calibrated mode lines (isotropic model only).
-        #[arg(long)]
-        calibration: Option<PathBuf>,
-    },
+    Fit(FitArgs),
     /// Per-mode correction factors from reference recordings at a known tension.
-    Calibrate {
-        /// Reference recordings (WAV, FLAC or AIFF) of one membrane at the known tension.
-        #[arg(required = true)]
-        recordings: Vec<PathBuf>,
-        #[command(flatten)]
-        panel: PanelArgs,
-        #[command(flatten)]
-        input: InputArgs,
-        /// The known tension, e.g. 3000N/m or 30N/cm.
-        #[arg(long)]
-        tension: String,
-        /// Its standard uncertainty (k = 1), e.g. 30N/m.
-        #[arg(long)]
-        tension_u: String,
-        /// Model used to label the references: isotropic (default) or air (light film in air).
-        #[arg(long)]
-        model: Option<String>,
-        /// Calibration file to write (TOML).
-        #[arg(long)]
-        out: PathBuf,
-    },
+    Calibrate(CalibrateArgs),
     /// Predicted mode table for a tension, or the tension for a fundamental.
-    Modes {
-        #[command(flatten)]
-        panel: PanelArgs,
-        /// Tension, e.g. 2500N/m or 25N/cm.
-        #[arg(long, conflicts_with = "fundamental")]
-        tension: Option<String>,
-        /// Target fundamental, e.g. 180Hz: prints the tension that gives it.
-        #[arg(long)]
-        fundamental: Option<String>,
-        /// Number of lines to list [default: 12].
-        #[arg(long, default_value_t = 12)]
-        count: usize,
-        /// Unit for tensions: N/m, N/cm, kN/m, lbf/in.
-        #[arg(long, default_value = "N/m")]
-        tension_unit: String,
-        /// Print JSON.
-        #[arg(long)]
-        json: bool,
-    },
+    Modes(ModesArgs),
     /// Make a tap recording by modal synthesis.
-    Synth {
-        #[command(flatten)]
-        panel: PanelArgs,
-        /// Tension, e.g. 2500N/m.
-        #[arg(long)]
-        tension: String,
-        /// Output WAV file.
-        #[arg(short = 'o', long = "output")]
-        output: PathBuf,
-        /// Signal-to-noise ratio in dB [default: 40].
-        #[arg(long, default_value_t = synth::DEFAULT_SNR_DB)]
-        snr: f64,
-        /// T60 of the fundamental, e.g. 0.8s [default: 0.8s].
-        #[arg(long)]
-        t60: Option<String>,
-        /// Tap pulse duration, e.g. 0.5ms [default: 0.5ms].
-        #[arg(long)]
-        tap_duration: Option<String>,
-        /// Recording length, e.g. 1.5s [default: 1.5s].
-        #[arg(long)]
-        length: Option<String>,
-        /// Silence before the first tap, e.g. 100ms [default: 100ms].
-        #[arg(long)]
-        pre_roll: Option<String>,
-        /// Sample rate in Hz [default: 48000].
-        #[arg(long, default_value_t = synth::DEFAULT_SAMPLE_RATE_HZ)]
-        rate: u32,
-        /// Sample format: 16, 24 or 32f [default: 16].
-        #[arg(long, default_value = "16")]
-        bits: String,
-        /// Mains hum: 50Hz or 60Hz.
-        #[arg(long)]
-        hum: Option<String>,
-        /// Hum level in dB relative to the tap [default: -20].
-        #[arg(long, default_value_t = -20.0, allow_hyphen_values = true)]
-        hum_level: f64,
-        /// Extra tone FREQ:LEVEL or FREQ:LEVEL:T60, e.g. 333Hz:-20:0.3s (level in dB re the strongest mode); repeatable.
-        #[arg(long = "extra-tone")]
-        extra_tone: Vec<String>,
-        /// Number of taps [default: 1].
-        #[arg(long, default_value_t = 1)]
-        taps: usize,
-        /// Time between taps, e.g. 0.6s [default: 0.6s].
-        #[arg(long)]
-        tap_interval: Option<String>,
-        /// Gain in dB after scaling to -3 dBFS (positive values clip) [default: 0].
-        #[arg(long, default_value_t = 0.0, allow_hyphen_values = true)]
-        gain: f64,
-        /// Noise seed [default: 1].
-        #[arg(long, default_value_t = 1)]
-        seed: u64,
-        /// Lower the modes by air loading (a light film in air).
-        #[arg(long)]
-        air: bool,
-        /// Tension along y (rectangle; --tension is then along x).
-        #[arg(long)]
-        tension_y: Option<String>,
-        /// Bending stiffness D in N·m (rectangle, simply supported plate), e.g. 0.02.
-        #[arg(long)]
-        bending_stiffness: Option<f64>,
-        /// Uneven tension on a circle: Txx = T(1+ε), Tyy = T(1−ε), ε as a fraction or percent, e.g. 0.02 or 2% (splits each (1,n) pair; tap off the axes, e.g. --tap-at 0.6,30, to hear both members).
-        #[arg(long)]
-        tension_skew: Option<String>,
-    },
+    Synth(SynthArgs),
     /// Decide recordings against a specification (pass / fail /
     /// indeterminate / not measured), in parallel, with a history record.
-    Inspect {
-        /// Specification file (TOML).
-        #[arg(long)]
-        spec: PathBuf,
-        /// Recordings and folders of recordings.
-        #[arg(required_unless_present = "watch", conflicts_with = "watch")]
-        inputs: Vec<PathBuf>,
-        /// Station mode: decide each new recording (.wav, .flac, .aif, .aiff,
-        /// .aifc) as it lands in this folder
-        /// (files already there are left alone).
-        #[arg(long, value_name = "DIR")]
-        watch: Option<PathBuf>,
-        /// Watch mode: time between two listings of the folder, 50ms to 10s
-        /// [default: 500ms].
-        #[arg(long, value_name = "DURATION", requires = "watch")]
-        watch_interval: Option<String>,
-        /// Watch mode: stop after this many recordings.
-        #[arg(long, value_name = "N", requires = "watch")]
-        watch_limit: Option<usize>,
-        /// Watch mode: stop after this long, e.g. 60s or 28800s.
-        #[arg(long, value_name = "DURATION", requires = "watch")]
-        watch_timeout: Option<String>,
-        /// Folder for inspect.csv, inspect.jsonl and the batch report [default: inspect-out].
-        #[arg(long, default_value = "inspect-out")]
-        out: PathBuf,
-        /// History database [default: tonus-history.sqlite].
-        #[arg(long, default_value = "tonus-history.sqlite")]
-        history: PathBuf,
-        /// Do not write the history.
-        #[arg(long)]
-        no_history: bool,
-        /// Station name for the record.
-        #[arg(long)]
-        station: Option<String>,
-        /// Operator name for the record.
-        #[arg(long)]
-        operator: Option<String>,
-        /// Which recordings get the damped-sinusoid refinement: always,
-        /// near-limits (those whose decision a shift of 10 fit
-        /// uncertainties would change) or never [default: near-limits].
-        #[arg(long, value_name = "WHEN", default_value = "near-limits", value_parser = ["always", "near-limits", "never"])]
-        refine: String,
-        /// FFT peaks only, the same as --refine never.
-        #[arg(long, conflicts_with = "refine")]
-        peaks_only: bool,
-    },
+    Inspect(InspectArgs),
     /// List or export the decision history.
-    History {
-        /// History database [default: tonus-history.sqlite].
-        #[arg(long, default_value = "tonus-history.sqlite")]
-        db: PathBuf,
-        /// Only this specification (panel type) name.
-        #[arg(long)]
-        spec: Option<String>,
-        /// From this time (RFC 3339, e.g. 2026-12-01T00:00:00Z).
-        #[arg(long)]
-        since: Option<String>,
-        /// Before this time (RFC 3339).
-        #[arg(long)]
-        until: Option<String>,
-        /// Only this decision: pass, fail, indeterminate, not_measured.
-        #[arg(long)]
-        decision: Option<String>,
-        /// Export as CSV to this file instead of listing.
-        #[arg(long)]
-        csv: Option<PathBuf>,
-    },
+    History(HistoryArgs),
     /// Fit every recording in the demo folder and write the reports.
-    Demo {
-        /// Folder of recordings, each with a NAME.panel.toml beside it.
-        #[arg(long, default_value = "demo-recordings")]
-        recordings: PathBuf,
-        /// Folder for the reports.
-        #[arg(long, default_value = "reports")]
-        out: PathBuf,
-    },
+    Demo(DemoArgs),
+}
+
+/// Arguments of `tonus partials`.
+#[derive(Debug, Args)]
+pub struct PartialsArgs {
+    /// The recording (WAV, FLAC or AIFF).
+    pub recording: PathBuf,
+    #[command(flatten)]
+    pub input: InputArgs,
+    /// Print one JSON object instead of the table.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Arguments of `tonus fit`.
+#[derive(Debug, Args)]
+pub struct FitArgs {
+    /// The recording (WAV, FLAC or AIFF).
+    pub recording: PathBuf,
+    #[command(flatten)]
+    pub panel: PanelArgs,
+    #[command(flatten)]
+    pub input: InputArgs,
+    /// Also fit the rectangle's effective height (width as given).
+    #[arg(long)]
+    pub free_aspect: bool,
+    /// Model: isotropic (default), free-aspect, biaxial (rectangle, Tx and Ty), stiff (rectangle: tension and bending stiffness), air (air-loaded membrane).
+    #[arg(long)]
+    pub model: Option<String>,
+    /// Unit for the printed tension: N/m, N/cm, kN/m, lbf/in.
+    #[arg(long, default_value = "N/m")]
+    pub tension_unit: String,
+    /// Print one JSON object instead of the table.
+    #[arg(long)]
+    pub json: bool,
+    /// Write report, JSON, CSV and spectrum PNG into this folder.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// With --out, skip the PNG.
+    #[arg(long)]
+    pub no_picture: bool,
+    /// Calibration file from `tonus calibrate`: fit against the calibrated mode lines (isotropic model only).
+    #[arg(long)]
+    pub calibration: Option<PathBuf>,
+}
+
+/// Arguments of `tonus calibrate`.
+#[derive(Debug, Args)]
+pub struct CalibrateArgs {
+    /// Reference recordings (WAV, FLAC or AIFF) of one membrane at the known tension.
+    #[arg(required = true)]
+    pub recordings: Vec<PathBuf>,
+    #[command(flatten)]
+    pub panel: PanelArgs,
+    #[command(flatten)]
+    pub input: InputArgs,
+    /// The known tension, e.g. 3000N/m or 30N/cm.
+    #[arg(long)]
+    pub tension: String,
+    /// Its standard uncertainty (k = 1), e.g. 30N/m.
+    #[arg(long)]
+    pub tension_u: String,
+    /// Model used to label the references: isotropic (default) or air (light film in air).
+    #[arg(long)]
+    pub model: Option<String>,
+    /// Calibration file to write (TOML).
+    #[arg(long)]
+    pub out: PathBuf,
+}
+
+/// Arguments of `tonus modes`.
+#[derive(Debug, Args)]
+pub struct ModesArgs {
+    #[command(flatten)]
+    pub panel: PanelArgs,
+    /// Tension, e.g. 2500N/m or 25N/cm.
+    #[arg(long, conflicts_with = "fundamental")]
+    pub tension: Option<String>,
+    /// Target fundamental, e.g. 180Hz: prints the tension that gives it.
+    #[arg(long)]
+    pub fundamental: Option<String>,
+    /// Number of lines to list.
+    #[arg(long, default_value_t = 12)]
+    pub count: usize,
+    /// Unit for tensions: N/m, N/cm, kN/m, lbf/in.
+    #[arg(long, default_value = "N/m")]
+    pub tension_unit: String,
+    /// Print JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Arguments of `tonus synth`.
+#[derive(Debug, Args)]
+pub struct SynthArgs {
+    #[command(flatten)]
+    pub panel: PanelArgs,
+    /// Tension, e.g. 2500N/m.
+    #[arg(long)]
+    pub tension: String,
+    /// Output WAV file.
+    #[arg(short = 'o', long = "output")]
+    pub output: PathBuf,
+    /// Signal-to-noise ratio in dB.
+    #[arg(long, default_value_t = synth::DEFAULT_SNR_DB)]
+    pub snr: f64,
+    /// T60 of the fundamental, e.g. 0.8s [default: 0.8s].
+    #[arg(long)]
+    pub t60: Option<String>,
+    /// Tap pulse duration, e.g. 0.5ms [default: 0.5ms].
+    #[arg(long)]
+    pub tap_duration: Option<String>,
+    /// Recording length, e.g. 1.5s [default: 1.5s].
+    #[arg(long)]
+    pub length: Option<String>,
+    /// Silence before the first tap, e.g. 100ms [default: 100ms].
+    #[arg(long)]
+    pub pre_roll: Option<String>,
+    /// Sample rate in Hz.
+    #[arg(long, default_value_t = synth::DEFAULT_SAMPLE_RATE_HZ)]
+    pub rate: u32,
+    /// Sample format: 16, 24 or 32f.
+    #[arg(long, default_value = "16")]
+    pub bits: String,
+    /// Mains hum: 50Hz or 60Hz.
+    #[arg(long)]
+    pub hum: Option<String>,
+    /// Hum level in dB relative to the tap.
+    #[arg(long, default_value_t = -20.0, allow_hyphen_values = true)]
+    pub hum_level: f64,
+    /// Extra tone FREQ:LEVEL or FREQ:LEVEL:T60, e.g. 333Hz:-20:0.3s (level in dB re the strongest mode); repeatable.
+    #[arg(long = "extra-tone")]
+    pub extra_tone: Vec<String>,
+    /// Number of taps.
+    #[arg(long, default_value_t = 1)]
+    pub taps: usize,
+    /// Time between taps, e.g. 0.6s [default: 0.6s].
+    #[arg(long)]
+    pub tap_interval: Option<String>,
+    /// Gain in dB after scaling to -3 dBFS (positive values clip).
+    #[arg(long, default_value_t = 0.0, allow_hyphen_values = true)]
+    pub gain: f64,
+    /// Noise seed.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// Lower the modes by air loading (a light film in air).
+    #[arg(long)]
+    pub air: bool,
+    /// Tension along y (rectangle; --tension is then along x).
+    #[arg(long)]
+    pub tension_y: Option<String>,
+    /// Bending stiffness D in N·m (rectangle, simply supported plate), e.g. 0.02.
+    #[arg(long)]
+    pub bending_stiffness: Option<f64>,
+    /// Uneven tension on a circle: Txx = T(1+ε), Tyy = T(1−ε), ε as a fraction or percent, e.g. 0.02 or 2% (splits each (1,n) pair; tap off the axes, e.g. --tap-at 0.6,30, to hear both members).
+    #[arg(long)]
+    pub tension_skew: Option<String>,
+}
+
+/// Arguments of `tonus inspect`.
+#[derive(Debug, Args)]
+pub struct InspectArgs {
+    /// Specification file (TOML).
+    #[arg(long)]
+    pub spec: PathBuf,
+    /// Recordings and folders of recordings.
+    #[arg(required_unless_present = "watch", conflicts_with = "watch")]
+    pub inputs: Vec<PathBuf>,
+    /// Station mode: decide each new recording (.wav, .flac, .aif, .aiff,
+    /// .aifc) as it lands in this folder
+    /// (files already there are left alone).
+    #[arg(long, value_name = "DIR")]
+    pub watch: Option<PathBuf>,
+    /// Watch mode: time between two listings of the folder, 50ms to 10s
+    /// [default: 500ms].
+    #[arg(long, value_name = "DURATION", requires = "watch")]
+    pub watch_interval: Option<String>,
+    /// Watch mode: stop after this many recordings.
+    #[arg(long, value_name = "N", requires = "watch")]
+    pub watch_limit: Option<usize>,
+    /// Watch mode: stop after this long, e.g. 60s or 28800s.
+    #[arg(long, value_name = "DURATION", requires = "watch")]
+    pub watch_timeout: Option<String>,
+    /// Folder for inspect.csv, inspect.jsonl and the batch report.
+    #[arg(long, default_value = "inspect-out")]
+    pub out: PathBuf,
+    /// History database.
+    #[arg(long, default_value = "tonus-history.sqlite")]
+    pub history: PathBuf,
+    /// Do not write the history.
+    #[arg(long)]
+    pub no_history: bool,
+    /// Station name for the record.
+    #[arg(long)]
+    pub station: Option<String>,
+    /// Operator name for the record.
+    #[arg(long)]
+    pub operator: Option<String>,
+    /// Which recordings get the damped-sinusoid refinement: always,
+    /// near-limits (those whose decision a shift of 10 fit
+    /// uncertainties would change) or never.
+    #[arg(long, value_name = "WHEN", default_value = "near-limits", value_parser = ["always", "near-limits", "never"])]
+    pub refine: String,
+    /// FFT peaks only, the same as --refine never.
+    #[arg(long, conflicts_with = "refine")]
+    pub peaks_only: bool,
+}
+
+/// Arguments of `tonus history`.
+#[derive(Debug, Args)]
+pub struct HistoryArgs {
+    /// History database.
+    #[arg(long, default_value = "tonus-history.sqlite")]
+    pub db: PathBuf,
+    /// Only this specification (panel type) name.
+    #[arg(long)]
+    pub spec: Option<String>,
+    /// From this time (RFC 3339, e.g. 2026-12-01T00:00:00Z).
+    #[arg(long)]
+    pub since: Option<String>,
+    /// Before this time (RFC 3339).
+    #[arg(long)]
+    pub until: Option<String>,
+    /// Only this decision: pass, fail, indeterminate, not_measured.
+    #[arg(long)]
+    pub decision: Option<String>,
+    /// Export as CSV to this file instead of listing.
+    #[arg(long)]
+    pub csv: Option<PathBuf>,
+}
+
+/// Arguments of `tonus demo`.
+#[derive(Debug, Args)]
+pub struct DemoArgs {
+    /// Folder of recordings, each with a NAME.panel.toml beside it.
+    #[arg(long, default_value = "demo-recordings")]
+    pub recordings: PathBuf,
+    /// Folder for the reports.
+    #[arg(long, default_value = "reports")]
+    pub out: PathBuf,
 }
 
 /// Geometry and material flags shared by fit, modes and synth.
