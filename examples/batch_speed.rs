@@ -338,12 +338,12 @@ fn mode_arg() -> String {
         .unwrap_or_else(|| "near-limits".into())
 }
 
-fn refinement_of(mode: &str) -> tonus::app::batch::Refinement {
-    tonus::app::batch::Refinement::from_name(mode)
+fn refinement_of(mode: &str) -> tonus::app::options::Refinement {
+    tonus::app::options::Refinement::from_name(mode)
         .unwrap_or_else(|| panic!("--refine {mode}: use always, near-limits or never"))
 }
 
-fn refinement() -> tonus::app::batch::Refinement {
+fn refinement() -> tonus::app::options::Refinement {
     refinement_of(&mode_arg())
 }
 

@@ -4,214 +4,156 @@
 
 use clap::Parser;
 use std::process::ExitCode;
-use tonus::app::cli::{self, Cli, Command};
+use tonus::acceptance::history::Filter;
+use tonus::acceptance::spec::Spec;
+use tonus::app::cli::{Cli, Command, FitArgs, HistoryArgs, InspectArgs, SynthArgs};
 use tonus::app::commands::{self, Outcome};
+use tonus::app::{batch, options};
 use tonus::base::error::Result;
+use tonus::base::time::UtcTime;
+use tonus::fitting::measurement::FitOptions;
 
 fn run(cli: Cli) -> Result<Outcome> {
     match cli.command {
-        Command::Partials {
-            recording,
-            input,
-            json,
-        } => commands::partials(&recording, input.channel()?, &input.analysis()?, json),
-        Command::Fit {
-            recording,
-            panel,
-            input,
-            free_aspect,
-            model,
-            tension_unit,
-            json,
-            out,
-            no_picture,
-            calibration,
-        } => commands::fit(
-            &recording,
-            input.channel()?,
-            &panel.to_panel()?,
-            &tonus::fitting::pipeline::FitOptions {
-                calibration: calibration
-                    .as_deref()
-                    .map(cli::load_calibration)
-                    .transpose()?
-                    .map(std::sync::Arc::new),
-                // A calibration replaces the panel file's model; only a
-                // --model flag given with it is refused.
-                ..cli::fit_options(
-                    free_aspect,
-                    model.as_deref().or(if calibration.is_none() {
-                        panel.to_spec()?.model
-                    } else {
-                        None
-                    }
-                    .as_deref()),
-                    &input,
-                )?
-            },
-            &commands::OutputOptions {
-                unit: cli::tension_unit(&tension_unit)?,
-                as_json: json,
-                out,
-                picture: !no_picture,
-            },
+        Command::Partials(a) => commands::partials(
+            &a.recording,
+            a.input.channel()?,
+            &a.input.analysis()?,
+            a.json,
         ),
-        Command::Modes {
-            panel,
-            tension,
-            fundamental,
-            count,
-            tension_unit,
-            json,
-        } => commands::modes(
-            &panel.to_panel()?,
-            tension.as_deref(),
-            fundamental.as_deref(),
-            count,
-            cli::tension_unit(&tension_unit)?,
-            json,
+        Command::Fit(a) => fit(a),
+        Command::Modes(a) => commands::modes(
+            &a.panel.to_panel()?,
+            a.tension.as_deref(),
+            a.fundamental.as_deref(),
+            a.count,
+            options::tension_unit(&a.tension_unit)?,
+            a.json,
         ),
-        Command::Synth {
-            panel,
-            tension,
-            output,
-            snr,
-            t60,
-            tap_duration,
-            length,
-            pre_roll,
-            rate,
-            bits,
-            hum,
-            hum_level,
-            extra_tone,
-            taps,
-            tap_interval,
-            gain,
-            seed,
-            air,
-            tension_y,
-            bending_stiffness,
-            tension_skew,
-            round,
-        } => {
-            let cfg = cli::synth_config(
-                &panel,
-                &tension,
-                snr,
-                t60.as_deref(),
-                tap_duration.as_deref(),
-                length.as_deref(),
-                pre_roll.as_deref(),
-                rate,
-                hum.as_deref(),
-                hum_level,
-                &extra_tone,
-                taps,
-                tap_interval.as_deref(),
-                gain,
-                seed,
-                air,
-                tension_y.as_deref(),
-                bending_stiffness,
-                tension_skew.as_deref(),
-            )?;
-            let mut cfg = cfg;
-            round.apply(&mut cfg)?;
-            let (b, float) = cli::sample_format(&bits)?;
-            round.synthesise(&cfg, &output, b, float)
-        }
-        Command::Calibrate {
-            recordings,
-            panel,
-            input,
-            tension,
-            tension_u,
-            model,
-            out,
-        } => {
+        Command::Synth(a) => synth(a),
+        Command::Calibrate(a) => {
             let (opts, t, u) =
-                cli::calibrate_options(model.as_deref(), &tension, &tension_u, &input)?;
+                options::calibrate_options(a.model.as_deref(), &a.tension, &a.tension_u, &a.input)?;
+            let panel = a.panel.to_panel()?;
             commands::calibrate(
-                &recordings,
-                input.channel()?,
-                &panel.to_panel()?,
+                &a.recordings,
+                a.input.channel()?,
+                &panel,
                 &opts,
                 (t, u),
-                &out,
+                &a.out,
             )
         }
-        Command::Demo { recordings, out } => commands::demo(&recordings, &out),
-        Command::Round(args) => tonus::app::round::run(&args, &mut print_line),
-        Command::Inspect {
-            spec,
-            inputs,
-            watch,
-            watch_interval,
-            watch_limit,
-            watch_timeout,
-            out,
-            history,
-            no_history,
-            station,
-            operator,
-            refine,
-            peaks_only,
-        } => {
-            let spec = tonus::acceptance::spec::Spec::from_file(&spec)?;
-            // Ctrl-C and SIGTERM finish the recordings in flight and write
-            // the outputs and the report.
-            tonus::app::batch::stop_on_signals()?;
-            let opts = tonus::app::batch::InspectOptions {
-                out,
-                history: (!no_history).then_some(history),
-                station,
-                operator,
-                progress: true,
-                refinement: cli::refinement(&refine, peaks_only)?,
-            };
-            match watch {
-                Some(dir) => tonus::app::batch::watch(
-                    &spec,
-                    &opts,
-                    &cli::watch_options(
-                        dir,
-                        watch_interval.as_deref(),
-                        watch_limit,
-                        watch_timeout.as_deref(),
-                    )?,
-                    &mut print_line,
-                    &mut |l| eprintln!("{l}"),
-                ),
-                None => tonus::app::batch::inspect(
-                    &spec,
-                    &tonus::app::batch::expand_inputs(&inputs)?,
-                    &opts,
-                    &mut print_line,
-                ),
-            }
+        Command::Demo(a) => commands::demo(&a.recordings, &a.out),
+        Command::Inspect(a) => inspect(a),
+        Command::History(a) => history(a),
+        Command::Round(a) => tonus::app::round::run(&a, &mut print_line),
+    }
+}
+
+/// `tonus fit`: a calibration replaces the panel file's model; only a
+/// --model flag given with it is refused.
+fn fit(a: FitArgs) -> Result<Outcome> {
+    let panel_model = match a.calibration {
+        None => a.panel.to_spec()?.model,
+        Some(_) => None,
+    };
+    let model = a.model.as_deref().or(panel_model.as_deref());
+    let opts = FitOptions {
+        calibration: a
+            .calibration
+            .as_deref()
+            .map(options::load_calibration)
+            .transpose()?
+            .map(std::sync::Arc::new),
+        ..options::fit_options(a.free_aspect, model, &a.input)?
+    };
+    let output = commands::OutputOptions {
+        unit: options::tension_unit(&a.tension_unit)?,
+        as_json: a.json,
+        out: a.out,
+        picture: !a.no_picture,
+    };
+    commands::fit(
+        &a.recording,
+        a.input.channel()?,
+        &a.panel.to_panel()?,
+        &opts,
+        &output,
+    )
+}
+
+/// `tonus synth`.
+fn synth(a: SynthArgs) -> Result<Outcome> {
+    let cfg = options::synth_config(
+        &a.panel,
+        &a.tension,
+        a.snr,
+        a.t60.as_deref(),
+        a.tap_duration.as_deref(),
+        a.length.as_deref(),
+        a.pre_roll.as_deref(),
+        a.rate,
+        a.hum.as_deref(),
+        a.hum_level,
+        &a.extra_tone,
+        a.taps,
+        a.tap_interval.as_deref(),
+        a.gain,
+        a.seed,
+        a.air,
+        a.tension_y.as_deref(),
+        a.bending_stiffness,
+        a.tension_skew.as_deref(),
+    )?;
+    let mut cfg = cfg;
+    a.round.apply(&mut cfg)?;
+    let (bits, float) = options::sample_format(&a.bits)?;
+    a.round.synthesise(&cfg, &a.output, bits, float)
+}
+
+/// `tonus inspect`: a batch of files, or a watched folder.
+fn inspect(a: InspectArgs) -> Result<Outcome> {
+    let spec = Spec::from_file(&a.spec)?;
+    // Ctrl-C and SIGTERM finish the recordings in flight and write the
+    // outputs and the report.
+    batch::stop_on_signals()?;
+    let opts = batch::InspectOptions {
+        out: a.out,
+        history: (!a.no_history).then_some(a.history),
+        station: a.station,
+        operator: a.operator,
+        progress: true,
+        refinement: options::refinement(&a.refine, a.peaks_only)?,
+    };
+    match a.watch {
+        Some(dir) => {
+            let watch = options::watch_options(
+                dir,
+                a.watch_interval.as_deref(),
+                a.watch_limit,
+                a.watch_timeout.as_deref(),
+            )?;
+            batch::watch(&spec, &opts, &watch, &mut print_line, &mut |l| {
+                eprintln!("{l}")
+            })
         }
-        Command::History {
-            db,
-            spec,
-            since,
-            until,
-            decision,
-            csv,
-        } => {
-            let filter = tonus::acceptance::history::Filter {
-                spec_name: spec,
-                since: since
-                    .map(|t| tonus::base::time::UtcTime::parse("--since", &t))
-                    .transpose()?,
-                until: until
-                    .map(|t| tonus::base::time::UtcTime::parse("--until", &t))
-                    .transpose()?,
-                decision,
-            };
-            commands::history(&db, &filter, csv.as_deref())
+        None => {
+            let files = batch::expand_inputs(&a.inputs)?;
+            batch::inspect(&spec, &files, &opts, &mut print_line)
         }
     }
+}
+
+/// `tonus history`.
+fn history(a: HistoryArgs) -> Result<Outcome> {
+    let filter = Filter {
+        spec_name: a.spec,
+        since: a.since.map(|t| UtcTime::parse("--since", &t)).transpose()?,
+        until: a.until.map(|t| UtcTime::parse("--until", &t)).transpose()?,
+        decision: a.decision,
+    };
+    commands::history(&a.db, &filter, a.csv.as_deref())
 }
 
 /// Prints one line on standard output as soon as it is ready (a line

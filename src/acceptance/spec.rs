@@ -123,7 +123,7 @@ use crate::base::hash::sha256_hex;
 use crate::base::units::{self, KgPerM2, Meters};
 use crate::fitting::calibration;
 use crate::fitting::fit::FitModel;
-use crate::fitting::pipeline::Measurement;
+use crate::fitting::measurement::Measurement;
 use crate::fitting::quality::Grade;
 use crate::physics::membrane::Shape;
 use crate::physics::panel::{self, Panel, PanelSpec};

@@ -7,7 +7,8 @@
 
 use crate::base::error::{Result, TonusError};
 use crate::base::units::{self, KgPerM2, TensionUnit};
-use crate::fitting::pipeline::{self, FitOptions, Measurement};
+use crate::fitting::measurement::{FitOptions, Measurement};
+use crate::fitting::pipeline;
 use crate::fitting::quality::Grade;
 use crate::physics::membrane;
 use crate::physics::panel::{Panel, PanelSpec};
@@ -168,7 +169,7 @@ pub fn measure_file(
             });
             onsets.truncate(MAX_TAPS_FITTED);
         }
-        let (_, series) = crate::fitting::taps::measure_taps(&rec, &onsets, panel, opts)?;
+        let (_, series) = crate::fitting::pipeline::measure_taps(&rec, &onsets, panel, opts)?;
         m.taps = Some(series);
     }
     Ok(m)
@@ -479,7 +480,7 @@ pub fn demo(dir: &Path, out: &Path) -> Result<Outcome> {
             let spec = PanelSpec::from_file(&panel_file)?;
             let panel = Panel::from_spec(&spec)?;
             let rec = recording::read_wav(wav, ChannelChoice::MixDown)?;
-            let opts = crate::app::cli::fit_options(
+            let opts = crate::app::options::fit_options(
                 false,
                 spec.model.as_deref(),
                 &crate::app::cli::InputArgs::default(),

@@ -4,5 +4,6 @@
 pub mod batch;
 pub mod cli;
 pub mod commands;
+pub mod options;
 pub mod round;
 pub mod scorecard;

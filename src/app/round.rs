@@ -90,7 +90,7 @@ pub fn settings(a: &RoundArgs) -> Result<Settings> {
         ));
     }
     let model = a.model.clone().or(a.panel.to_spec()?.model);
-    let opts = crate::app::cli::fit_options(false, model.as_deref(), &a.input)?;
+    let opts = crate::app::options::fit_options(false, model.as_deref(), &a.input)?;
     if !matches!(
         opts.model,
         crate::fitting::fit::FitModel::Isotropic | crate::fitting::fit::FitModel::AirLoaded

@@ -20,7 +20,7 @@
 use crate::app::commands;
 use crate::base::error::{Result, TonusError};
 use crate::fitting::fit::FitModel;
-use crate::fitting::pipeline::FitOptions;
+use crate::fitting::measurement::FitOptions;
 use crate::fitting::quality::Grade;
 use crate::physics::panel::{Panel, PanelSpec};
 use crate::signal::recording::ChannelChoice;

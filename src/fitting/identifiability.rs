@@ -28,7 +28,7 @@
 //! on a rectangle: f² = Tx·m²/(4σLx²) + Ty·n²/(4σLy²), so Ty and Ly enter
 //! only as Ty/Ly² and the three columns (ln Tx, ln Ty, ln Ly) have rank 2.
 //! [`biaxial_free_aspect_jacobian`] builds it; the command line refuses
-//! that request before fitting (see [`crate::app::cli::fit_options`]).
+//! that request before fitting (see [`crate::app::options::fit_options`]).
 
 use crate::fitting::fit::{FitModel, FitResult, Observation};
 use nalgebra::DMatrix;
@@ -288,7 +288,7 @@ mod tests {
             ..Default::default()
         };
         let panel = crate::physics::panel::Panel::from_spec(&spec).unwrap();
-        let opts = crate::fitting::pipeline::FitOptions {
+        let opts = crate::fitting::measurement::FitOptions {
             model: FitModel::Biaxial,
             ..Default::default()
         };

@@ -639,33 +639,6 @@ pub fn scatter_density(r: f64) -> f64 {
     sum * NORM / 3.0
 }
 
-#[cfg(test)]
-mod scatter_tests {
-    use super::*;
-
-    /// The fast form equals the plain mean of the three normal densities
-    /// to 1e-11 relative (rounding, and the narrow terms dropped beyond
-    /// 40 cents).
-    #[test]
-    fn scatter_density_equals_the_mean_of_three_normals() {
-        for i in 0..400 {
-            let r = -60.0 + 0.3 * i as f64;
-            let plain = SCATTER_SCALES_CENTS
-                .iter()
-                .map(|&s| {
-                    (-r * r / (2.0 * s * s)).exp() / (s * (2.0 * std::f64::consts::PI).sqrt())
-                })
-                .sum::<f64>()
-                / 3.0;
-            let fast = scatter_density(r);
-            assert!(
-                (fast - plain).abs() <= 1e-11 * plain,
-                "r {r}: {fast} vs {plain}"
-            );
-        }
-    }
-}
-
 /// Probability that a line with full coupling shows a partial, in the
 /// pattern likelihood over an unknown tap.
 pub const ENSEMBLE_DETECTION_PROBABILITY: f64 = 0.9;
@@ -848,5 +821,32 @@ mod tests {
         let m = match_modes(&ps, &lines, (20.0, 1000.0)).unwrap();
         assert!((m.wave_speed_m_per_s / c - 1.0).abs() < 1e-9);
         assert_eq!(lines[m.assignments[1].line].labels, vec![(2, 2)]);
+    }
+}
+
+#[cfg(test)]
+mod scatter_tests {
+    use super::*;
+
+    /// The fast form equals the plain mean of the three normal densities
+    /// to 1e-11 relative (rounding, and the narrow terms dropped beyond
+    /// 40 cents).
+    #[test]
+    fn scatter_density_equals_the_mean_of_three_normals() {
+        for i in 0..400 {
+            let r = -60.0 + 0.3 * i as f64;
+            let plain = SCATTER_SCALES_CENTS
+                .iter()
+                .map(|&s| {
+                    (-r * r / (2.0 * s * s)).exp() / (s * (2.0 * std::f64::consts::PI).sqrt())
+                })
+                .sum::<f64>()
+                / 3.0;
+            let fast = scatter_density(r);
+            assert!(
+                (fast - plain).abs() <= 1e-11 * plain,
+                "r {r}: {fast} vs {plain}"
+            );
+        }
     }
 }

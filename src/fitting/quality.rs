@@ -8,7 +8,7 @@
 use crate::base::warning::Warning;
 use crate::fitting::fit::FitResult;
 use crate::fitting::matching::Matching;
-use crate::fitting::pipeline::ModeRow;
+use crate::fitting::rows::ModeRow;
 use serde::Serialize;
 
 /// RMS residual above which a fit is only fair, cents.

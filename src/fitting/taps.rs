@@ -15,12 +15,8 @@
 //! never claims more than the taps agree on (the Birge-ratio idea; R. T.
 //! Birge, Phys. Rev. 40, 1932).
 
-use crate::base::error::Result;
 use crate::base::estimate::{outlier_limit, Estimate};
-use crate::fitting::pipeline::{self, FitOptions, Measurement};
 use crate::fitting::quality::Grade;
-use crate::physics::panel::Panel;
-use crate::signal::recording::Recording;
 use serde::Serialize;
 
 /// Smallest relative deviation counted as an outlier.
@@ -58,59 +54,6 @@ pub struct TapSeries {
     pub repeatability: Option<f64>,
     /// Unit of the values.
     pub unit: &'static str,
-}
-
-/// Cuts `rec` at the given onsets (samples, ascending, the first one the
-/// first tap) and fits each tap.
-///
-/// # Errors
-/// As [`pipeline::measure`].
-pub fn measure_taps(
-    rec: &Recording,
-    onsets: &[usize],
-    panel: &Panel,
-    opts: &FitOptions,
-) -> Result<(Vec<Measurement>, TapSeries)> {
-    let sr = rec.sample_rate_hz;
-    let first = onsets.first().copied().unwrap_or(0);
-    let bg_len = ((BACKGROUND_S * sr) as usize).min(first);
-    let background = &rec.samples[first - bg_len..first];
-    let guard = (GUARD_S * sr) as usize;
-    let mut measurements = Vec::new();
-    let mut taps = Vec::new();
-    for (i, &on) in onsets.iter().enumerate() {
-        let end = onsets
-            .get(i + 1)
-            .map(|&n| n.saturating_sub(guard))
-            .unwrap_or(rec.samples.len())
-            .max(on + 1);
-        let mut samples = background.to_vec();
-        samples.extend_from_slice(&rec.samples[on..end]);
-        let mut cut = Recording::from_samples(&rec.path, samples, sr);
-        cut.clipped_fraction = rec.clipped_fraction;
-        let further = pipeline::FitOptions {
-            aspect_search: false,
-            ..opts.clone()
-        };
-        let m = pipeline::measure(&cut, panel, &further)?;
-        let value = m.tension.or(m.tension_over_density);
-        taps.push(TapResult {
-            onset_s: on as f64 / sr,
-            value,
-            grade: m.quality.grade,
-            modes: m.fit.as_ref().map(|f| f.n_used).unwrap_or(0),
-            kept: true,
-            reason: None,
-        });
-        measurements.push(m);
-    }
-    let unit = if panel.areal_density.is_some() {
-        "N/m"
-    } else {
-        "m2/s2"
-    };
-    let series = combine(taps, unit);
-    Ok((measurements, series))
 }
 
 /// Flags outliers and combines the kept taps.

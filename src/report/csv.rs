@@ -6,7 +6,7 @@
 //! pair_lower_hz,pair_upper_hz,splitting_hz,splitting_u_hz,outlier`
 //! (empty where a value does not apply).
 
-use crate::fitting::pipeline::Measurement;
+use crate::fitting::measurement::Measurement;
 
 /// The mode table as CSV text.
 pub fn modes_csv(m: &Measurement) -> Result<String, csv::Error> {

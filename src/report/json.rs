@@ -41,7 +41,7 @@
 
 use crate::base::estimate::Estimate;
 use crate::base::units::TensionUnit;
-use crate::fitting::pipeline::Measurement;
+use crate::fitting::measurement::Measurement;
 use crate::physics::membrane::Shape;
 use crate::signal::partials::{Partial, PartialAnalysis};
 use serde_json::{json, Value};

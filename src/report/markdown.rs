@@ -3,7 +3,7 @@
 use super::json::CAUTION;
 use super::text::pm;
 use crate::base::units::TensionUnit;
-use crate::fitting::pipeline::Measurement;
+use crate::fitting::measurement::Measurement;
 use std::fmt::Write;
 use std::path::Path;
 

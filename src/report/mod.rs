@@ -20,7 +20,7 @@ pub mod text;
 
 use crate::base::error::{Result, TonusError};
 use crate::base::units::TensionUnit;
-use crate::fitting::pipeline::Measurement;
+use crate::fitting::measurement::Measurement;
 
 /// The picture's data, taken from a measurement.
 pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::SpectrumPlot {

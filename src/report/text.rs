@@ -1,7 +1,7 @@
 //! The terminal table.
 
 use crate::base::units::{sig, TensionUnit};
-use crate::fitting::pipeline::Measurement;
+use crate::fitting::measurement::Measurement;
 use crate::signal::partials::PartialAnalysis;
 use std::fmt::Write;
 use std::path::Path;

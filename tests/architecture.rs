@@ -1,16 +1,17 @@
 //! The architecture, checked: every file of `src/` belongs to a layer (the
 //! folder it sits in), imports only from its own layer and the layers
 //! allowed below it, and no chain of imports between files comes back to
-//! where it started.
+//! where it started; and no file or function grows past the sizes a
+//! reader can hold without a reason written at its top.
 //!
 //! The imports are read as text: every `crate::…` path (with `use`
 //! groups `{…}` expanded) and every `super::…` path, in the code before a
-//! file's `#[cfg(test)]` (a module's own tests may reach up, say to make
-//! a recording with `synth`). A path is resolved to the longest prefix
-//! that names a module file, so `crate::fitting::pipeline::Measurement`
-//! is an edge to `src/fitting/pipeline.rs` (or its folder's `mod.rs`).
+//! file's first test module (`#[cfg(test)] mod …`; a module's own tests
+//! may reach up, say to make a recording with `synth`). A path is resolved to the longest prefix
+//! that names a module file, so `crate::fitting::measurement::Measurement`
+//! is an edge to `src/fitting/measurement.rs` (or its folder's `mod.rs`).
 //!
-//! Run alone: `cargo test --release --test layers -- --nocapture`.
+//! Run alone: `cargo test --release --test architecture -- --nocapture`.
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::path::{Path, PathBuf};
@@ -76,11 +77,16 @@ fn module_of(rel: &Path) -> Vec<String> {
     parts
 }
 
-/// The code a file ships: everything before its first `#[cfg(test)]`, with
-/// line comments removed so that doc examples do not count as imports.
+/// Everything before a file's first test module.
+fn before_tests(text: &str) -> &str {
+    text.split("#[cfg(test)]\nmod ").next().unwrap_or("")
+}
+
+/// The code a file ships ([`before_tests`]), with line comments removed so
+/// that doc examples do not count as imports.
 fn shipped_code(text: &str) -> String {
-    let body = text.split("#[cfg(test)]").next().unwrap_or("");
-    body.lines()
+    before_tests(text)
+        .lines()
         .map(|line| match line.find("//") {
             Some(i) => &line[..i],
             None => line,
@@ -375,4 +381,110 @@ fn print_graph() {
     for c in cycles(&graph.edges) {
         println!("CYCLE: {}", c.join(" "));
     }
+}
+
+/// Most lines of shipped code (tests not counted) in one file.
+const MAX_FILE_LINES: usize = 700;
+/// Most lines in one function, signature and body.
+const MAX_FUNCTION_LINES: usize = 120;
+
+/// Functions longer than [`MAX_FUNCTION_LINES`] in `code`: (first line
+/// number, name, length). A function starts at a line `fn NAME` (with any
+/// visibility) and ends at the first line holding only its indentation
+/// and `}`; a function that has a comment line starting `// Size:` or
+/// `/// Size:` just above it (its reason) is not listed.
+fn long_functions(code: &str) -> Vec<(usize, String, usize)> {
+    let lines: Vec<&str> = code.lines().collect();
+    let mut out = Vec::new();
+    for (i, line) in lines.iter().enumerate() {
+        let trimmed = line.trim_start();
+        let indent = &line[..line.len() - trimmed.len()];
+        let rest = [
+            "pub fn ",
+            "pub(crate) fn ",
+            "pub(super) fn ",
+            "fn ",
+            "const fn ",
+            "pub const fn ",
+        ]
+        .iter()
+        .find_map(|p| trimmed.strip_prefix(p));
+        let Some(rest) = rest else { continue };
+        let name: String = rest
+            .chars()
+            .take_while(|c| c.is_alphanumeric() || *c == '_')
+            .collect();
+        // A declaration without a body (a trait method) ends in `;`.
+        let Some(open) = (i..lines.len()).find(|&j| {
+            let l = lines[j].trim_end();
+            l.ends_with('{') || l.ends_with(';')
+        }) else {
+            continue;
+        };
+        if lines[open].trim_end().ends_with(';') {
+            continue;
+        }
+        let close = format!("{indent}}}");
+        let Some(end) = (open + 1..lines.len()).find(|&j| lines[j].trim_end() == close) else {
+            continue;
+        };
+        let len = end - i + 1;
+        let reasoned = lines[..i]
+            .iter()
+            .rev()
+            .take_while(|l| l.trim_start().starts_with("//") || l.trim_start().starts_with("#["))
+            .any(|l| {
+                l.trim_start()
+                    .trim_start_matches('/')
+                    .trim_start()
+                    .starts_with("Size:")
+            });
+        if len > MAX_FUNCTION_LINES && !reasoned {
+            out.push((i + 1, name, len));
+        }
+    }
+    out
+}
+
+#[test]
+fn files_and_functions_stay_small_or_say_why() {
+    let src = src_dir();
+    let mut files = Vec::new();
+    rust_files(&src, &mut files);
+    let mut over = Vec::new();
+    for f in &files {
+        let rel = f.strip_prefix(&src).unwrap().display().to_string();
+        let text = std::fs::read_to_string(f).unwrap();
+        let code = before_tests(&text);
+        let n = code.lines().count();
+        let reasoned = text
+            .lines()
+            .take_while(|l| l.starts_with("//!") || l.trim().is_empty())
+            .any(|l| {
+                l.trim_start_matches("//!")
+                    .trim_start()
+                    .starts_with("Size:")
+            });
+        if n > MAX_FILE_LINES && !reasoned {
+            over.push(format!(
+                "{rel}: {n} lines of code (no `//! Size:` reason at its top)"
+            ));
+        }
+        for (line, name, len) in long_functions(code) {
+            over.push(format!(
+                "{rel}:{line} fn {name}: {len} lines (no `// Size:` reason above it)"
+            ));
+        }
+    }
+    assert!(over.is_empty(), "too large:\n{}", over.join("\n"));
+}
+
+#[test]
+fn the_size_check_sees_a_long_function() {
+    let body: String = (0..130).map(|i| format!("    let x{i} = {i};\n")).collect();
+    let code = format!("pub fn long() {{\n{body}}}\n\nfn short() {{\n}}\n");
+    let found = long_functions(&code);
+    assert_eq!(found, vec![(1, "long".to_string(), 132)]);
+    let reasoned = format!("// Size: one table, read top to bottom.\n{code}");
+    assert!(long_functions(&reasoned).is_empty());
 }
