@@ -94,6 +94,67 @@ pub struct Advice {
     pub summary: String,
 }
 
+/// One lug against the tolerance (see the module notes).
+fn judge(d: &LugDeviation, mean: Option<Estimate>, tolerance_pct: f64) -> LugJudgement {
+    let big_u = COVERAGE_K * d.deviation_u_pct;
+    let a = d.deviation_pct.abs();
+    let state = if a + big_u <= tolerance_pct {
+        LugState::Within
+    } else if a - big_u > tolerance_pct {
+        LugState::Beyond
+    } else {
+        LugState::Unsure
+    };
+    let turn = (state == LugState::Beyond).then_some(if d.deviation_pct < 0.0 {
+        Turn::Tighten
+    } else {
+        Turn::Loosen
+    });
+    let deviation_abs = mean.map(|m| Estimate {
+        value: m.value * d.deviation_pct / 100.0,
+        standard_uncertainty: ((m.value * d.deviation_u_pct / 100.0).powi(2)
+            + (m.standard_uncertainty * d.deviation_pct / 100.0).powi(2))
+        .sqrt(),
+    });
+    LugJudgement {
+        deviation: d.clone(),
+        deviation_abs,
+        state,
+        turn,
+    }
+}
+
+/// The turns for the lugs beyond the tolerance, in the order given.
+fn turn_steps(beyond: &[&LugJudgement], unit: &str, at_rating: bool) -> Vec<String> {
+    let mut steps = Vec::new();
+    let amount = |l: &LugJudgement| match l.deviation_abs {
+        Some(e) => format!(
+            "{:.1} % ({:.0} {unit})",
+            l.deviation.deviation_pct.abs(),
+            e.value.abs()
+        ),
+        None => format!("{:.1} %", l.deviation.deviation_pct.abs()),
+    };
+    for l in beyond {
+        let lug = format!("lug {} ({:.0}°)", l.deviation.lug, l.deviation.angle_deg);
+        match (l.turn, at_rating) {
+            (Some(Turn::Tighten), false) => steps.push(format!(
+                "tighten {lug} by about {}, in small steps",
+                amount(l)
+            )),
+            (Some(Turn::Tighten), true) => steps.push(format!(
+                "do not tighten {lug} ({} below the mean): the mean is at the maker's rating already; bring it level by loosening the tight lugs",
+                amount(l)
+            )),
+            (Some(Turn::Loosen), _) => {
+                steps.push(format!("loosen {lug} by about {}, in small steps", amount(l)))
+            }
+            (None, _) => {}
+        }
+    }
+    steps
+}
+
 /// Judges each lug of `pattern` against `tolerance_pct` and writes the
 /// steps. `mean` converts percent to N/m (`unit`); `rating` is the
 /// maker's rating in the same unit, if given.
@@ -127,37 +188,7 @@ pub fn advise(
             summary,
         };
     };
-    let lugs: Vec<LugJudgement> = devs
-        .iter()
-        .map(|d| {
-            let big_u = COVERAGE_K * d.deviation_u_pct;
-            let a = d.deviation_pct.abs();
-            let state = if a + big_u <= tolerance_pct {
-                LugState::Within
-            } else if a - big_u > tolerance_pct {
-                LugState::Beyond
-            } else {
-                LugState::Unsure
-            };
-            let turn = (state == LugState::Beyond).then_some(if d.deviation_pct < 0.0 {
-                Turn::Tighten
-            } else {
-                Turn::Loosen
-            });
-            let deviation_abs = mean.map(|m| Estimate {
-                value: m.value * d.deviation_pct / 100.0,
-                standard_uncertainty: ((m.value * d.deviation_u_pct / 100.0).powi(2)
-                    + (m.standard_uncertainty * d.deviation_pct / 100.0).powi(2))
-                .sqrt(),
-            });
-            LugJudgement {
-                deviation: d.clone(),
-                deviation_abs,
-                state,
-                turn,
-            }
-        })
-        .collect();
+    let lugs: Vec<LugJudgement> = devs.iter().map(|d| judge(d, mean, tolerance_pct)).collect();
     let at_rating = match (rating, mean) {
         (Some(r), Some(m)) => m.value >= r,
         _ => false,
@@ -169,32 +200,7 @@ pub fn advise(
             .abs()
             .total_cmp(&b.deviation.deviation_pct.abs())
     });
-    let mut steps = Vec::new();
-    let amount = |l: &LugJudgement| match l.deviation_abs {
-        Some(e) => format!(
-            "{:.1} % ({:.0} {unit})",
-            l.deviation.deviation_pct.abs(),
-            e.value.abs()
-        ),
-        None => format!("{:.1} %", l.deviation.deviation_pct.abs()),
-    };
-    for l in &beyond {
-        let lug = format!("lug {} ({:.0}°)", l.deviation.lug, l.deviation.angle_deg);
-        match (l.turn, at_rating) {
-            (Some(Turn::Tighten), false) => steps.push(format!(
-                "tighten {lug} by about {}, in small steps",
-                amount(l)
-            )),
-            (Some(Turn::Tighten), true) => steps.push(format!(
-                "do not tighten {lug} ({} below the mean): the mean is at the maker's rating already; bring it level by loosening the tight lugs",
-                amount(l)
-            )),
-            (Some(Turn::Loosen), _) => {
-                steps.push(format!("loosen {lug} by about {}, in small steps", amount(l)))
-            }
-            (None, _) => {}
-        }
-    }
+    let mut steps = turn_steps(&beyond, unit, at_rating);
     let unsure: Vec<String> = lugs
         .iter()
         .filter(|l| l.state == LugState::Unsure)

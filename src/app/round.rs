@@ -14,7 +14,8 @@ use crate::app::cli::{RoundArgs, RoundSynthArgs};
 use crate::app::commands::Outcome;
 use crate::base::error::{Result, TonusError};
 use crate::fitting::pipeline::FitOptions;
-use crate::fitting::round::{self, RoundResult, RoundTap};
+use crate::fitting::round;
+use crate::fitting::round_taps::{self as taps, RoundResult, RoundTap};
 use crate::physics::membrane::Shape;
 use crate::physics::panel::Panel;
 use crate::report::round::{self as round_report, RoundSetting};
@@ -256,7 +257,7 @@ pub fn run(a: &RoundArgs, print: &mut dyn FnMut(&str)) -> Result<Outcome> {
             });
         }
         for (i, &ang) in s.angles.iter().enumerate() {
-            let t = round::measure_tap(
+            let t = taps::measure_tap(
                 &rec.samples,
                 rec.sample_rate_hz,
                 &onsets,
@@ -291,7 +292,7 @@ pub fn run(a: &RoundArgs, print: &mut dyn FnMut(&str)) -> Result<Outcome> {
                     hint: "record the tap with some quiet before it".into(),
                 });
             };
-            let mut t = round::measure_tap(
+            let mut t = taps::measure_tap(
                 &rec.samples,
                 rec.sample_rate_hz,
                 &[first],
@@ -314,7 +315,7 @@ pub fn run(a: &RoundArgs, print: &mut dyn FnMut(&str)) -> Result<Outcome> {
         );
         stem = file_stem(&a.recordings[0]);
     }
-    let result = round::conclude(taps, unit);
+    let result = taps::conclude(taps, unit);
     finish_round(a, &s, &source, &stem, result, print)?;
     Ok(Outcome {
         stdout: String::new(),
@@ -358,6 +359,8 @@ fn run_stream(a: &RoundArgs, s: &Settings, print: &mut dyn FnMut(&str)) -> Resul
     Ok(outcome)
 }
 
+// Size: one loop read top to bottom — read a chunk, decide the taps whose
+// window is complete, finish a round, trim the buffer, handle the end.
 /// The live loop on any stream (public for the benchmark and the tests):
 /// `on_decided` gets the time each round's result took after the last
 /// sample it needed had arrived.
@@ -374,8 +377,8 @@ pub fn live<R: std::io::Read>(
     let rate = stream.rate_hz as f64;
     let unit = unit_of(&s.panel);
     let mut finder = TapFinder::new(rate);
-    let window = (round::TAP_WINDOW_S * rate) as usize;
-    let keep = (round::BACKGROUND_S * rate) as usize + finder.delay_samples();
+    let window = (taps::TAP_WINDOW_S * rate) as usize;
+    let keep = (taps::BACKGROUND_S * rate) as usize + finder.delay_samples();
     let mut st = Live {
         buf: Vec::new(),
         base: 0,
@@ -428,7 +431,7 @@ pub fn live<R: std::io::Read>(
                 break;
             }
             let rel: Vec<usize> = st.onsets.iter().map(|&o| o - st.base).collect();
-            let t = round::measure_tap(
+            let t = taps::measure_tap(
                 &st.buf,
                 rate,
                 &rel[..(i + 2).min(rel.len())],
@@ -445,7 +448,7 @@ pub fn live<R: std::io::Read>(
         }
         if st.taps.len() == a.lugs {
             let taps = std::mem::take(&mut st.taps);
-            let result = round::conclude(taps, unit);
+            let result = taps::conclude(taps, unit);
             st.rounds_done += 1;
             let source = format!("standard input, round {}", st.rounds_done);
             let stem = format!("round-{}", st.rounds_done);

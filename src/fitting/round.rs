@@ -79,7 +79,6 @@
 //! towards the centre, so δ_p for p ≥ 4 is the equivalent amplitude of that
 //! model, not a stress measured at the rim.
 
-use crate::base::estimate::Estimate;
 use crate::physics::evenness::{self, PairInput};
 use serde::Serialize;
 
@@ -148,26 +147,10 @@ pub struct Orientation {
 /// Why an orientation could not be fitted.
 pub type Refusal = String;
 
-/// ψ model: atan2(g·|sin m(φ − α)|, |cos m(φ − α)|), degrees.
-pub fn psi_model_deg(m: u32, phi_deg: f64, alpha_deg: f64, g: f64) -> f64 {
-    let x = (m as f64 * (phi_deg - alpha_deg)).to_radians();
-    (g * x.sin().abs()).atan2(x.cos().abs()).to_degrees()
-}
-
-/// Fits α (and one pickup ratio per pair) of order m to the points
-/// (pair index, tap angle φ in degrees, measured ψ in degrees); see the
-/// module documentation. `n_pairs` is the number of pairs indexed.
-///
-/// # Errors
-/// Fewer than three distinct tap directions mφ (mod 180°), or fewer
-/// points than parameters plus two: the direction is not determined.
-pub fn orientation(
-    m: u32,
-    n_pairs: usize,
-    points: &[(usize, f64, f64)],
-) -> std::result::Result<(f64, f64, Vec<f64>, f64), Refusal> {
+/// How many distinct tap directions mφ (mod 180°, closer than
+/// [`SAME_DIRECTION_DEG`] counting as one) the points hold.
+fn distinct_directions(m: u32, points: &[(usize, f64, f64)]) -> usize {
     let mm = m as f64;
-    let period = 180.0 / mm;
     let mut dirs: Vec<f64> = points
         .iter()
         .map(|p| (mm * p.1).rem_euclid(180.0))
@@ -184,25 +167,13 @@ pub fn orientation(
     if distinct >= 2 && dirs[0] + 180.0 - dirs[dirs.len() - 1] <= SAME_DIRECTION_DEG {
         distinct -= 1;
     }
-    let n_par = 1 + n_pairs;
-    if distinct < 3 {
-        return Err(format!(
-            "the taps hear the order-{m} pairs from {distinct} distinct direction(s) (m·angle mod 180°); at least 3 are needed"
-        ));
-    }
-    if points.len() < n_par + 2 {
-        return Err(format!(
-            "{} tap(s) resolved the order-{m} pairs; at least {} are needed for the direction and its uncertainty",
-            points.len(),
-            n_par + 2
-        ));
-    }
-    let ssr = |alpha: f64, lg: &[f64]| -> f64 {
-        points
-            .iter()
-            .map(|&(k, phi, psi)| (psi - psi_model_deg(m, phi, alpha, lg[k].exp())).powi(2))
-            .sum()
-    };
+    distinct
+}
+
+/// The best α on a 0.5° grid, each pair's ln g on its own grid (the
+/// pairs share only α): the start of the Gauss–Newton refinement.
+fn grid_start(m: u32, n_pairs: usize, points: &[(usize, f64, f64)]) -> (f64, Vec<f64>) {
+    let period = 180.0 / m as f64;
     // Grid: for each α, each pair's ln g on its own grid (the pairs
     // share only α).
     let mut best = (f64::INFINITY, 0.0, vec![0.0; n_pairs]);
@@ -231,9 +202,53 @@ pub fn orientation(
             best = (total, alpha, lg);
         }
     }
+    (best.1, best.2)
+}
+
+/// ψ model: atan2(g·|sin m(φ − α)|, |cos m(φ − α)|), degrees.
+pub fn psi_model_deg(m: u32, phi_deg: f64, alpha_deg: f64, g: f64) -> f64 {
+    let x = (m as f64 * (phi_deg - alpha_deg)).to_radians();
+    (g * x.sin().abs()).atan2(x.cos().abs()).to_degrees()
+}
+
+/// Fits α (and one pickup ratio per pair) of order m to the points
+/// (pair index, tap angle φ in degrees, measured ψ in degrees); see the
+/// module documentation. `n_pairs` is the number of pairs indexed.
+///
+/// # Errors
+/// Fewer than three distinct tap directions mφ (mod 180°), or fewer
+/// points than parameters plus two: the direction is not determined.
+pub fn orientation(
+    m: u32,
+    n_pairs: usize,
+    points: &[(usize, f64, f64)],
+) -> std::result::Result<(f64, f64, Vec<f64>, f64), Refusal> {
+    let mm = m as f64;
+    let period = 180.0 / mm;
+    let distinct = distinct_directions(m, points);
+    let n_par = 1 + n_pairs;
+    if distinct < 3 {
+        return Err(format!(
+            "the taps hear the order-{m} pairs from {distinct} distinct direction(s) (m·angle mod 180°); at least 3 are needed"
+        ));
+    }
+    if points.len() < n_par + 2 {
+        return Err(format!(
+            "{} tap(s) resolved the order-{m} pairs; at least {} are needed for the direction and its uncertainty",
+            points.len(),
+            n_par + 2
+        ));
+    }
+    let ssr = |alpha: f64, lg: &[f64]| -> f64 {
+        points
+            .iter()
+            .map(|&(k, phi, psi)| (psi - psi_model_deg(m, phi, alpha, lg[k].exp())).powi(2))
+            .sum()
+    };
+    let best = grid_start(m, n_pairs, points);
     // Gauss–Newton with a numerical Jacobian (central differences) and
     // step halving.
-    let mut par: Vec<f64> = std::iter::once(best.1).chain(best.2).collect();
+    let mut par: Vec<f64> = std::iter::once(best.0).chain(best.1).collect();
     let resid = |par: &[f64]| -> Vec<f64> {
         points
             .iter()
@@ -376,9 +391,132 @@ fn pool(values: &[(f64, f64)]) -> (f64, f64) {
     (mean, u)
 }
 
+/// The orders 1..=N/2 of the lug pattern that no determined order
+/// carries (an order p reaches the lugs as p mod N, or N − that), each
+/// with why.
+fn undetermined_orders(n_lugs: usize, orders: &[PatternOrder]) -> Vec<(u32, String)> {
+    let half = (n_lugs / 2) as u32;
+    let mut not_determined = Vec::new();
+    for q in 1..=half.max(1) {
+        // Orders whose pattern aliases onto q at the lugs: p ≡ ±q (mod N).
+        let carried = orders.iter().any(|o| {
+            let r = o.order as usize % n_lugs.max(1);
+            (r == q as usize || n_lugs - r == q as usize) && o.angle_deg.is_some()
+        });
+        if carried {
+            continue;
+        }
+        let why = if q % 2 == 1 {
+            "odd order: it moves no pair's frequency to first order (one side tighter than the other for order 1), so no round of taps can see it in the frequencies".to_string()
+        } else if let Some(o) = orders.iter().find(|o| o.order == q) {
+            o.angle_refused
+                .clone()
+                .unwrap_or_else(|| "direction not fixed".into())
+        } else {
+            format!("no ({},n) pair was resolved", q / 2)
+        };
+        not_determined.push((q, why));
+    }
+    not_determined
+}
+
 /// The tension pattern from a round of taps at `lug_angles_deg` (one
 /// [`TapLines`] per lug, in the lugs' order). See the module
 /// documentation.
+/// Each resolved pair's members pooled over the taps that split it.
+fn pool_pairs(taps: &[TapLines], resolved: &[(u32, u32)]) -> Vec<PooledPair> {
+    let mut pooled: Vec<PooledPair> = Vec::new();
+    for &(m, n) in resolved {
+        let (mut lo, mut hi) = (Vec::new(), Vec::new());
+        for t in taps {
+            for (mn, o) in &t.lines {
+                if let (
+                    true,
+                    LineObservation::Split {
+                        f_low_hz,
+                        f_low_u_hz,
+                        f_high_hz,
+                        f_high_u_hz,
+                        ..
+                    },
+                ) = (*mn == (m, n), o)
+                {
+                    lo.push((*f_low_hz, *f_low_u_hz));
+                    hi.push((*f_high_hz, *f_high_u_hz));
+                }
+            }
+        }
+        pooled.push(((m, n), pool(&lo), pool(&hi)));
+    }
+    pooled
+}
+
+/// The size of the order-m pattern: ε from the (1,n) pairs, or δ_2m =
+/// split/|c(m,n)| pooled by inverse variance, with its uncertainty, %.
+fn order_size(m: u32, ev: Option<&evenness::Evenness>) -> Option<(f64, f64)> {
+    if m == 1 {
+        match ev {
+            Some(e) if e.pairs_used > 0 => Some((e.epsilon_pct, e.epsilon_u_pct)),
+            _ => None,
+        }
+    } else {
+        let vals: Vec<(f64, f64)> = ev
+            .iter()
+            .flat_map(|e| e.higher_order.iter())
+            .filter(|h| h.m == m)
+            .filter_map(|h| {
+                let c = evenness::lug_split_coefficient(h.m, h.n).abs();
+                (c > 1e-3).then(|| (h.split_pct / c, h.split_u_pct / c))
+            })
+            .collect();
+        if vals.is_empty() {
+            return None;
+        }
+        let w: Vec<f64> = vals.iter().map(|v| 1.0 / v.1.max(1e-9).powi(2)).collect();
+        let sw: f64 = w.iter().sum();
+        Some((
+            vals.iter().zip(&w).map(|(v, w)| v.0 * w).sum::<f64>() / sw,
+            (1.0 / sw).sqrt(),
+        ))
+    }
+}
+
+/// The points (pair index, tap angle, ψ) of one order's pairs.
+fn psi_points(
+    taps: &[TapLines],
+    pairs_m: &[(u32, u32)],
+    pooled: &[PooledPair],
+) -> Vec<(usize, f64, f64)> {
+    let mut points = Vec::new();
+    for t in taps {
+        for (k, &(mm, nn)) in pairs_m.iter().enumerate() {
+            let Some((_, o)) = t.lines.iter().find(|(mn, _)| *mn == (mm, nn)) else {
+                continue;
+            };
+            let (_, lo, hi) = pooled
+                .iter()
+                .find(|p| p.0 == (mm, nn))
+                .copied()
+                .unwrap_or_default();
+            match *o {
+                LineObservation::Split { a_low, a_high, .. } if a_low > 0.0 && a_high > 0.0 => {
+                    points.push((k, t.angle_deg, a_low.atan2(a_high).to_degrees()));
+                }
+                LineObservation::Single { f_hz } => {
+                    let gate = ALONE_FRACTION_OF_SPLIT * (hi.0 - lo.0).abs();
+                    if (f_hz - hi.0).abs() < gate {
+                        points.push((k, t.angle_deg, 0.0));
+                    } else if (f_hz - lo.0).abs() < gate {
+                        points.push((k, t.angle_deg, 90.0));
+                    }
+                }
+                _ => {}
+            }
+        }
+    }
+    points
+}
+
 pub fn pattern(taps: &[TapLines]) -> Pattern {
     let n_lugs = taps.len();
     // Every degenerate line resolved in at least one tap.
@@ -404,30 +542,7 @@ pub fn pattern(taps: &[TapLines]) -> Pattern {
             ),
         };
     }
-    // Pool each pair's member frequencies and build the points ψ.
-    let mut pooled: Vec<PooledPair> = Vec::new();
-    for &(m, n) in &resolved {
-        let (mut lo, mut hi) = (Vec::new(), Vec::new());
-        for t in taps {
-            for (mn, o) in &t.lines {
-                if let (
-                    true,
-                    LineObservation::Split {
-                        f_low_hz,
-                        f_low_u_hz,
-                        f_high_hz,
-                        f_high_u_hz,
-                        ..
-                    },
-                ) = (*mn == (m, n), o)
-                {
-                    lo.push((*f_low_hz, *f_low_u_hz));
-                    hi.push((*f_high_hz, *f_high_u_hz));
-                }
-            }
-        }
-        pooled.push(((m, n), pool(&lo), pool(&hi)));
-    }
+    let pooled = pool_pairs(taps, &resolved);
     let inputs: Vec<PairInput> = pooled
         .iter()
         .map(|&((m, n), lo, hi)| PairInput::new(m, n, lo.0, lo.1, hi.0, hi.1))
@@ -438,60 +553,10 @@ pub fn pattern(taps: &[TapLines]) -> Pattern {
     let mut orders = Vec::new();
     for &m in &orders_m {
         let pairs_m: Vec<(u32, u32)> = resolved.iter().copied().filter(|p| p.0 == m).collect();
-        // Size of the order.
-        let (amp, amp_u) = if m == 1 {
-            match &ev {
-                Some(e) if e.pairs_used > 0 => (e.epsilon_pct, e.epsilon_u_pct),
-                _ => continue,
-            }
-        } else {
-            let vals: Vec<(f64, f64)> = ev
-                .iter()
-                .flat_map(|e| e.higher_order.iter())
-                .filter(|h| h.m == m)
-                .filter_map(|h| {
-                    let c = evenness::lug_split_coefficient(h.m, h.n).abs();
-                    (c > 1e-3).then(|| (h.split_pct / c, h.split_u_pct / c))
-                })
-                .collect();
-            if vals.is_empty() {
-                continue;
-            }
-            let w: Vec<f64> = vals.iter().map(|v| 1.0 / v.1.max(1e-9).powi(2)).collect();
-            let sw: f64 = w.iter().sum();
-            (
-                vals.iter().zip(&w).map(|(v, w)| v.0 * w).sum::<f64>() / sw,
-                (1.0 / sw).sqrt(),
-            )
+        let Some((amp, amp_u)) = order_size(m, ev.as_ref()) else {
+            continue;
         };
-        // Points ψ for the orientation.
-        let mut points = Vec::new();
-        for t in taps {
-            for (k, &(mm, nn)) in pairs_m.iter().enumerate() {
-                let Some((_, o)) = t.lines.iter().find(|(mn, _)| *mn == (mm, nn)) else {
-                    continue;
-                };
-                let (_, lo, hi) = pooled
-                    .iter()
-                    .find(|p| p.0 == (mm, nn))
-                    .copied()
-                    .unwrap_or_default();
-                match *o {
-                    LineObservation::Split { a_low, a_high, .. } if a_low > 0.0 && a_high > 0.0 => {
-                        points.push((k, t.angle_deg, a_low.atan2(a_high).to_degrees()));
-                    }
-                    LineObservation::Single { f_hz } => {
-                        let gate = ALONE_FRACTION_OF_SPLIT * (hi.0 - lo.0).abs();
-                        if (f_hz - hi.0).abs() < gate {
-                            points.push((k, t.angle_deg, 0.0));
-                        } else if (f_hz - lo.0).abs() < gate {
-                            points.push((k, t.angle_deg, 90.0));
-                        }
-                    }
-                    _ => {}
-                }
-            }
-        }
+        let points = psi_points(taps, &pairs_m, &pooled);
         let significant = amp > 2.0 * amp_u;
         let coef_sign = if m == 1 {
             1.0
@@ -545,27 +610,7 @@ pub fn pattern(taps: &[TapLines]) -> Pattern {
     }
     let lug_angles: Vec<f64> = taps.iter().map(|t| t.angle_deg).collect();
     let lugs = lug_deviations(&lug_angles, &orders);
-    let mut not_determined = Vec::new();
-    for q in 1..=half.max(1) {
-        // Orders whose pattern aliases onto q at the lugs: p ≡ ±q (mod N).
-        let carried = orders.iter().any(|o| {
-            let r = o.order as usize % n_lugs.max(1);
-            (r == q as usize || n_lugs - r == q as usize) && o.angle_deg.is_some()
-        });
-        if carried {
-            continue;
-        }
-        let why = if q % 2 == 1 {
-            "odd order: it moves no pair's frequency to first order (one side tighter than the other for order 1), so no round of taps can see it in the frequencies".to_string()
-        } else if let Some(o) = orders.iter().find(|o| o.order == q) {
-            o.angle_refused
-                .clone()
-                .unwrap_or_else(|| "direction not fixed".into())
-        } else {
-            format!("no ({},n) pair was resolved", q / 2)
-        };
-        not_determined.push((q, why));
-    }
+    let not_determined = undetermined_orders(n_lugs, &orders);
     Pattern {
         orders,
         lugs,
@@ -642,204 +687,6 @@ pub fn lug_angles(lugs: usize, first_deg: f64, clockwise: bool) -> Vec<f64> {
     (0..lugs)
         .map(|j| (first_deg + sign * step * j as f64).rem_euclid(360.0))
         .collect()
-}
-
-/// The mean tension over the taps, for converting % to N/m.
-pub fn mean_tension(values: &[Estimate]) -> Option<Estimate> {
-    if values.is_empty() {
-        return None;
-    }
-    let n = values.len() as f64;
-    let mean = values.iter().map(|e| e.value).sum::<f64>() / n;
-    let u_fit = values
-        .iter()
-        .map(|e| e.standard_uncertainty.powi(2))
-        .sum::<f64>()
-        .sqrt()
-        / n;
-    let s = if values.len() >= 2 {
-        (values.iter().map(|e| (e.value - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt()
-    } else {
-        0.0
-    };
-    Some(Estimate {
-        value: mean,
-        standard_uncertainty: u_fit.max(s / n.sqrt()),
-    })
-}
-
-/// Longest stretch of one tap that is fitted, s (the span
-/// [`crate::signal::tap`] analyses at most): a tap is decided once this much of it
-/// has been heard, or at the next tap.
-pub const TAP_WINDOW_S: f64 = crate::signal::tap::MAX_SPAN_S;
-/// Quiet taken before the round's first tap as every tap's background, s.
-pub const BACKGROUND_S: f64 = crate::fitting::taps::BACKGROUND_S;
-/// Gap left before the next tap's onset, s.
-pub const GUARD_S: f64 = crate::fitting::taps::GUARD_S;
-
-/// One tap of a round, fitted.
-#[derive(Debug, Clone, Serialize)]
-pub struct RoundTap {
-    /// Lug number, 1 = the first lug.
-    pub lug: usize,
-    /// Tap angle, degrees.
-    pub angle_deg: f64,
-    /// Onset in the recording or stream, s.
-    pub onset_s: f64,
-    /// Fitted tension (N/m), or T/σ (m²/s²) without areal density.
-    pub value: Option<Estimate>,
-    /// Grade of the fit.
-    pub grade: crate::fitting::quality::Grade,
-    /// Modes fitted.
-    pub modes: usize,
-    /// Degenerate lines heard split in this tap, e.g. "(1,1)".
-    pub split_pairs: Vec<String>,
-    /// What the tap says about each degenerate line.
-    pub lines: TapLines,
-}
-
-/// One past the last sample of tap `i`: the next onset less
-/// [`GUARD_S`], at most [`TAP_WINDOW_S`] after the onset, at most `len`.
-pub fn tap_end(onsets: &[usize], i: usize, rate_hz: f64, len: usize) -> usize {
-    let on = onsets[i];
-    let window = on + (TAP_WINDOW_S * rate_hz) as usize;
-    let next = onsets
-        .get(i + 1)
-        .map(|&n| n.saturating_sub((GUARD_S * rate_hz) as usize))
-        .unwrap_or(usize::MAX);
-    window.min(next).min(len).max(on + 1)
-}
-
-/// What one fitted tap says about its degenerate lines (circle pairs of
-/// order m ≥ 1 on a line of their own).
-pub fn tap_lines(m: &crate::fitting::pipeline::Measurement, angle_deg: f64) -> TapLines {
-    let lines = m
-        .modes
-        .iter()
-        .filter(|r| r.degeneracy == 2 && r.m >= 1 && !r.outlier)
-        .map(|r| {
-            let o = match r.pair {
-                Some(p) => LineObservation::Split {
-                    f_low_hz: p.lower.frequency_hz,
-                    f_low_u_hz: p.lower.frequency_u_hz,
-                    f_high_hz: p.upper.frequency_hz,
-                    f_high_u_hz: p.upper.frequency_u_hz,
-                    a_low: 10f64.powf(p.lower.level_db / 20.0),
-                    a_high: 10f64.powf(p.upper.level_db / 20.0),
-                },
-                None => LineObservation::Single {
-                    f_hz: r.measured_hz,
-                },
-            };
-            ((r.m, r.n), o)
-        })
-        .collect();
-    TapLines { angle_deg, lines }
-}
-
-/// Fits tap `i` of a round: the samples from its onset to [`tap_end`],
-/// after the [`BACKGROUND_S`] before the round's first onset
-/// (`onsets[0]`), through the same pipeline as `tonus fit` (aspect
-/// search off, as for the further taps of a file). The cut depends only
-/// on the samples and the onsets, so a stream and a file holding the same
-/// audio give the same fit.
-///
-/// # Errors
-/// As [`crate::fitting::pipeline::measure`].
-#[allow(clippy::too_many_arguments)]
-pub fn measure_tap(
-    samples: &[f64],
-    rate_hz: f64,
-    onsets: &[usize],
-    i: usize,
-    angle_deg: f64,
-    panel: &crate::physics::panel::Panel,
-    opts: &crate::fitting::pipeline::FitOptions,
-    name: &std::path::Path,
-) -> crate::base::error::Result<RoundTap> {
-    let first = onsets[0];
-    let bg = ((BACKGROUND_S * rate_hz) as usize).min(first);
-    let mut cut = samples[first - bg..first].to_vec();
-    cut.extend_from_slice(&samples[onsets[i]..tap_end(onsets, i, rate_hz, samples.len())]);
-    let rec = crate::signal::recording::Recording::from_samples(name, cut, rate_hz);
-    let opts = crate::fitting::pipeline::FitOptions {
-        aspect_search: false,
-        ..opts.clone()
-    };
-    let m = crate::fitting::pipeline::measure(&rec, panel, &opts)?;
-    let lines = tap_lines(&m, angle_deg);
-    Ok(RoundTap {
-        lug: i + 1,
-        angle_deg,
-        onset_s: onsets[i] as f64 / rate_hz,
-        value: m.tension.or(m.tension_over_density),
-        grade: m.quality.grade,
-        modes: m.fit.as_ref().map(|f| f.n_used).unwrap_or(0),
-        split_pairs: lines
-            .lines
-            .iter()
-            .filter(|(_, o)| matches!(o, LineObservation::Split { .. }))
-            .map(|((a, b), _)| format!("({a},{b})"))
-            .collect(),
-        lines,
-    })
-}
-
-/// A whole round: its taps, the mean tension and the pattern.
-#[derive(Debug, Clone, Serialize)]
-pub struct RoundResult {
-    /// Every tap in lug order.
-    pub taps: Vec<RoundTap>,
-    /// Mean over the taps graded sound or fair (N/m, or m²/s²).
-    pub mean: Option<Estimate>,
-    /// "N/m" or "m2/s2".
-    pub unit: &'static str,
-    /// The tension pattern.
-    pub pattern: Pattern,
-    /// Taps left out of the pattern, with why.
-    pub left_out: Vec<String>,
-}
-
-/// Concludes a round from its fitted taps. Taps graded doubtful or unfit
-/// are left out of the mean and of the pattern (their pairs may be
-/// mislabelled) and named in `left_out`.
-pub fn conclude(taps: Vec<RoundTap>, unit: &'static str) -> RoundResult {
-    use crate::fitting::quality::Grade;
-    let good: Vec<&RoundTap> = taps.iter().filter(|t| t.grade < Grade::Doubtful).collect();
-    let left_out = taps
-        .iter()
-        .filter(|t| t.grade >= Grade::Doubtful)
-        .map(|t| {
-            format!(
-                "lug {} ({:.0}°): fit graded {}",
-                t.lug,
-                t.angle_deg,
-                t.grade.name()
-            )
-        })
-        .collect();
-    let values: Vec<Estimate> = good.iter().filter_map(|t| t.value).collect();
-    let mut lines: Vec<TapLines> = good.iter().map(|t| t.lines.clone()).collect();
-    // The lug angles of every lug (left-out ones too) decide the
-    // deviations; a left-out tap contributes no observation.
-    let all_angles: Vec<f64> = taps.iter().map(|t| t.angle_deg).collect();
-    for t in taps.iter().filter(|t| t.grade >= Grade::Doubtful) {
-        lines.push(TapLines {
-            angle_deg: t.angle_deg,
-            lines: Vec::new(),
-        });
-    }
-    let mut pattern = pattern(&lines);
-    if pattern.lugs.is_some() {
-        pattern.lugs = lug_deviations(&all_angles, &pattern.orders);
-    }
-    RoundResult {
-        taps,
-        mean: mean_tension(&values),
-        unit,
-        pattern,
-        left_out,
-    }
 }
 
 #[cfg(test)]

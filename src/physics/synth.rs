@@ -265,26 +265,7 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
     for line in &lines {
         if let Shape::Circle { .. } = cfg.shape {
             let (m, nn) = line.labels[0];
-            // (upper/f₀, lower/f₀, orientation α of the upper member's
-            // cos m(θ − α) shape in radians) of a split pair, if split.
-            let split = match (m, cfg.tension_skew) {
-                (1, Some(eps)) => Some((
-                    (1.0 + eps / 2.0).sqrt(),
-                    (1.0 - eps / 2.0).sqrt(),
-                    cfg.skew_angle_deg.to_radians(),
-                )),
-                (0, _) | (1, None) => None,
-                _ => cfg
-                    .pattern
-                    .iter()
-                    .find(|p| p.0 == 2 * m)
-                    .map(|&(_, d, th)| {
-                        let c = crate::physics::evenness::lug_split_coefficient(m, nn);
-                        let s = (c * d).abs();
-                        let quarter = if c >= 0.0 { 0.0 } else { 90.0 / m as f64 };
-                        (1.0 + s / 2.0, 1.0 - s / 2.0, (th + quarter).to_radians())
-                    }),
-            };
+            let split = pair_split(cfg, m, nn);
             if let (Some((up, down, alpha)), 1) = (split, line.labels.len()) {
                 let air = if cfg.air_loaded {
                     crate::physics::airload::loading_factor(line.factor, cfg.areal_density.0)
@@ -549,6 +530,30 @@ pub fn synthesise_round(
         *v = (s * gain).clamp(-1.0, 1.0);
     }
     Ok(x)
+}
+
+/// A circle pair (m, n) split by the configured pattern: (upper/f₀,
+/// lower/f₀, orientation α of the upper member's cos m(θ − α) shape in
+/// radians), or None when the pair is not split.
+fn pair_split(cfg: &SynthConfig, m: u32, nn: u32) -> Option<(f64, f64, f64)> {
+    match (m, cfg.tension_skew) {
+        (1, Some(eps)) => Some((
+            (1.0 + eps / 2.0).sqrt(),
+            (1.0 - eps / 2.0).sqrt(),
+            cfg.skew_angle_deg.to_radians(),
+        )),
+        (0, _) | (1, None) => None,
+        _ => cfg
+            .pattern
+            .iter()
+            .find(|p| p.0 == 2 * m)
+            .map(|&(_, d, th)| {
+                let c = crate::physics::evenness::lug_split_coefficient(m, nn);
+                let s = (c * d).abs();
+                let quarter = if c >= 0.0 { 0.0 } else { 90.0 / m as f64 };
+                (1.0 + s / 2.0, 1.0 - s / 2.0, (th + quarter).to_radians())
+            }),
+    }
 }
 
 /// Per-sample rotation e^{(−rate + i·2πf)/sr} as (re, im).

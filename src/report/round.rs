@@ -17,7 +17,7 @@
 //! `summary`}, `left_out`, `odd_orders`, `caution`.
 
 use crate::acceptance::lug_advice::Advice;
-use crate::fitting::round::RoundResult;
+use crate::fitting::round_taps::RoundResult;
 use serde_json::{json, Value};
 
 /// Schema name of the JSON record.

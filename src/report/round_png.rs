@@ -12,7 +12,7 @@
 //! `assets/fonts/`).
 
 use crate::acceptance::lug_advice::{Advice, LugState};
-use crate::fitting::round::RoundResult;
+use crate::fitting::round_taps::RoundResult;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 use std::sync::OnceLock;
@@ -54,6 +54,7 @@ fn err<E: std::fmt::Display>(e: E) -> String {
     format!("drawing the round picture failed: {e}")
 }
 
+// Size: one picture drawn top to bottom, layer over layer.
 /// Renders the picture and returns it as PNG bytes.
 ///
 /// # Errors
