@@ -194,11 +194,14 @@ pub fn advise(
         _ => false,
     };
     let mut beyond: Vec<&LugJudgement> = lugs.iter().filter(|l| l.turn.is_some()).collect();
-    beyond.sort_by(|a, b| {
-        a.deviation
-            .deviation_pct
-            .abs()
-            .total_cmp(&b.deviation.deviation_pct.abs())
+    // Smallest change first; changes equal to 0.01 % in lug order (the
+    // pattern gives opposite lugs equal deviations, which rounding must
+    // not reorder between a stream and a file).
+    beyond.sort_by_key(|l| {
+        (
+            (l.deviation.deviation_pct.abs() * 100.0).round() as i64,
+            l.deviation.lug,
+        )
     });
     let mut steps = turn_steps(&beyond, unit, at_rating);
     let unsure: Vec<String> = lugs
@@ -262,6 +265,7 @@ mod tests {
             ),
             not_determined: Vec::new(),
             not_measurable: None,
+            set_aside: Vec::new(),
         }
     }
 
@@ -317,6 +321,7 @@ mod tests {
             lugs: None,
             not_determined: Vec::new(),
             not_measurable: Some("unevenness not measurable from these taps: x".into()),
+            set_aside: Vec::new(),
         };
         let a = advise(&p, None, "N/m", 1.0, None);
         assert!(a.lugs.is_empty() && a.steps.is_empty());

@@ -366,6 +366,8 @@ pub struct Pattern {
     /// Present when no pair was resolved in any tap: why the unevenness
     /// cannot be measured from these taps.
     pub not_measurable: Option<String>,
+    /// Pairs heard split but not used, each with why.
+    pub set_aside: Vec<String>,
 }
 
 /// A pair (m, n) with its lower and upper member's pooled (frequency,
@@ -418,6 +420,47 @@ fn undetermined_orders(n_lugs: usize, orders: &[PatternOrder]) -> Vec<(u32, Stri
         not_determined.push((q, why));
     }
     not_determined
+}
+
+/// Pairs split in at least this many taps enter the pattern: a degenerate
+/// pair split by the head's tension is split at every tap that is not on
+/// a node of one member, while two neighbouring lines or a noise peak that
+/// looks like a pair in one tap do not repeat.
+pub const MIN_SPLIT_TAPS: usize = 2;
+
+/// Takes out of `resolved` the pairs split in fewer than
+/// [`MIN_SPLIT_TAPS`] taps, and those of an order m above half the lug
+/// count (their pattern order 2m exceeds the lug count: it varies between
+/// the lugs, and at the lugs it would alias onto a lower order), and says
+/// why.
+fn set_aside_pairs(taps: &[TapLines], resolved: &mut Vec<(u32, u32)>) -> Vec<String> {
+    let n_lugs = taps.len() as u32;
+    let mut why = Vec::new();
+    resolved.retain(|&(m, n)| {
+        let count = taps
+            .iter()
+            .filter(|t| {
+                t.lines
+                    .iter()
+                    .any(|(mn, o)| *mn == (m, n) && matches!(o, LineObservation::Split { .. }))
+            })
+            .count();
+        if count < MIN_SPLIT_TAPS {
+            why.push(format!(
+                "({m},{n}): split in {count} tap only, not a pair the head's tension splits"
+            ));
+            false
+        } else if 2 * m > n_lugs {
+            why.push(format!(
+                "({m},{n}): its pattern order {} is above the lug count {n_lugs}",
+                2 * m
+            ));
+            false
+        } else {
+            true
+        }
+    });
+    why
 }
 
 /// The tension pattern from a round of taps at `lug_angles_deg` (one
@@ -529,6 +572,7 @@ pub fn pattern(taps: &[TapLines]) -> Pattern {
         .collect();
     resolved.sort();
     resolved.dedup();
+    let set_aside = set_aside_pairs(taps, &mut resolved);
     let half = (n_lugs / 2) as u32;
     if resolved.is_empty() {
         return Pattern {
@@ -538,8 +582,9 @@ pub fn pattern(taps: &[TapLines]) -> Pattern {
                 .map(|p| (p, "no split pair resolved".to_string()))
                 .collect(),
             not_measurable: Some(
-                "unevenness not measurable from these taps: no degenerate pair was heard split into two members in any tap — an even head does not split its pairs, and a split smaller than about half the decay rate (0.5/τ) cannot be resolved; tap off the centre, let each tap ring at least 1 s, and record close to the head".into(),
+                "unevenness not measurable from these taps: no degenerate pair was heard split into two members in two taps or more — an even head does not split its pairs, and a split smaller than about half the decay rate (0.5/τ) cannot be resolved; tap off the centre, let each tap ring at least 1 s, and record close to the head".into(),
             ),
+            set_aside,
         };
     }
     let pooled = pool_pairs(taps, &resolved);
@@ -616,6 +661,7 @@ pub fn pattern(taps: &[TapLines]) -> Pattern {
         lugs,
         not_determined,
         not_measurable: None,
+        set_aside,
     }
 }
 

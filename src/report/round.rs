@@ -11,7 +11,7 @@
 //! {`orders` [{`order`, `pair_order`, `amplitude_pct`,
 //! `amplitude_u_pct`, `significant`, `angle_deg`, `angle_u_deg`,
 //! `orientation`, `angle_refused`, `pairs`}], `lugs`, `not_determined`
-//! [[order, why]], `not_measurable`}, `advice` {`tolerance_pct`,
+//! [[order, why]], `not_measurable`, `set_aside`}, `advice` {`tolerance_pct`,
 //! `coverage_k`, `lugs` [{`lug`, `angle_deg`, `deviation_pct`,
 //! `deviation_u_pct`, `deviation_abs`, `state`, `turn`}], `steps`,
 //! `summary`}, `left_out`, `odd_orders`, `caution`.
@@ -133,6 +133,9 @@ pub fn text(s: &RoundSetting, r: &RoundResult, a: &Advice) -> String {
     for l in &r.left_out {
         t.push_str(&format!("left out     {l}\n"));
     }
+    for l in &r.pattern.set_aside {
+        t.push_str(&format!("set aside    {l}\n"));
+    }
     for (i, l) in pattern_lines(r).iter().enumerate() {
         t.push_str(&format!(
             "{}{l}\n",
@@ -223,6 +226,9 @@ pub fn markdown(s: &RoundSetting, r: &RoundResult, a: &Advice, picture: Option<&
     m.push_str("## Tension pattern\n\n");
     for l in pattern_lines(r) {
         m.push_str(&format!("- {l}\n"));
+    }
+    for l in &r.pattern.set_aside {
+        m.push_str(&format!("- set aside: {l}\n"));
     }
     m.push_str(&format!("- {ODD_ORDERS}\n\n"));
     m.push_str("## Lugs\n\n");
