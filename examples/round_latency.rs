@@ -128,14 +128,14 @@ fn main() {
     .expect("panel");
     let opts = tonus::fitting::pipeline::FitOptions::default();
     let mut per_tap = Vec::new();
-    for i in 0..onsets.len() {
+    for (i, &angle) in angles.iter().enumerate().take(onsets.len()) {
         let t0 = Instant::now();
         tonus::fitting::round_taps::measure_tap(
             &x,
             cfg.sample_rate_hz as f64,
             &onsets,
             i,
-            angles[i],
+            angle,
             &panel,
             &opts,
             std::path::Path::new("bench"),

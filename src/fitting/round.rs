@@ -229,7 +229,7 @@ pub fn orientation(
     let n_par = 1 + n_pairs;
     if distinct < 3 {
         return Err(format!(
-            "the taps hear the order-{m} pairs from {distinct} distinct direction(s) (m·angle mod 180°); at least 3 are needed"
+            "the ({m},n) pairs were heard split from {distinct} distinct tap direction(s) ({m}·angle mod 180°); at least 3 are needed"
         ));
     }
     if points.len() < n_par + 2 {
@@ -669,16 +669,14 @@ pub fn pattern(taps: &[TapLines]) -> Pattern {
 /// θ_p) over the orders with an angle (significant or not: a
 /// non-significant order still carries its uncertainty), with
 /// u² = Σ_p [(c_j − c̄)²·u(δ_p)² + (δ_p·p·(s_j − s̄))²·u(θ_p)²] (radians),
-/// c = cos p(φ − θ_p), s = sin p(φ − θ_p), orders independent. None when
-/// no order has an angle and some order is significant (the size is
-/// known, the lugs are not); all zero with their uncertainty when no
-/// order is significant.
+/// c = cos p(φ − θ_p), s = sin p(φ − θ_p), orders independent, plus
+/// (δ_q² + u(δ_q)²)/2 for every order q without an angle. None when no
+/// order has an angle and some order is significant (the size is known,
+/// the lugs are not); all zero with their uncertainty when no order is
+/// significant.
 pub fn lug_deviations(angles_deg: &[f64], orders: &[PatternOrder]) -> Option<Vec<LugDeviation>> {
     let with_angle: Vec<&PatternOrder> = orders.iter().filter(|o| o.angle_deg.is_some()).collect();
-    let any_significant_without = orders
-        .iter()
-        .any(|o| o.significant && o.angle_deg.is_none());
-    if any_significant_without || (with_angle.is_empty() && orders.iter().all(|o| o.significant)) {
+    if with_angle.is_empty() && orders.iter().any(|o| o.significant) {
         return None;
     }
     let n = angles_deg.len() as f64;
@@ -704,9 +702,10 @@ pub fn lug_deviations(angles_deg: &[f64], orders: &[PatternOrder]) -> Option<Vec
                 ((cs[j] - cm) * o.amplitude_u_pct).powi(2) + (d * p * (sn[j] - sm) * u_th).powi(2);
         }
     }
-    // Orders without an angle and not significant: their size bounds the
-    // lugs' deviation; add it to the uncertainty as a spread of unknown
-    // phase (rms of cos over a turn, 1/√2).
+    // Orders without an angle: their size bounds what they add to each
+    // lug; it enters the uncertainty as a term of unknown phase (the rms
+    // of cos over a turn, 1/√2), so a lug is called beyond the tolerance
+    // only when it is beyond whatever that order's direction.
     for o in orders.iter().filter(|o| o.angle_deg.is_none()) {
         let extra = (o.amplitude_pct.powi(2) + o.amplitude_u_pct.powi(2)) / 2.0;
         var.iter_mut().for_each(|v| *v += extra);

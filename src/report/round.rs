@@ -102,7 +102,11 @@ fn pattern_lines(r: &RoundResult) -> Vec<String> {
         };
         out.push(format!("{size}{dir}{sig}"));
     }
-    for (q, why) in p.not_determined.iter().filter(|q| q.0 % 2 == 0) {
+    for (q, why) in p
+        .not_determined
+        .iter()
+        .filter(|q| q.0 % 2 == 0 && !p.orders.iter().any(|o| o.order == q.0))
+    {
         out.push(format!("order {q}: not determined ({why})"));
     }
     out
