@@ -765,7 +765,7 @@ mod tests {
             .map(|phi| (0, phi, psi_model_deg(3, phi, 5.0, 1.0)))
             .collect();
         let e = orientation(3, 1, &pts).unwrap_err();
-        assert!(e.contains("1 distinct direction"), "{e}");
+        assert!(e.contains("1 distinct tap direction"), "{e}");
     }
 
     /// A two-percent biaxial pattern along 30°: the lugs of a six-lug
