@@ -564,13 +564,6 @@ fn judge_upper(
     ))
 }
 
-/// Parses a grade name (`sound`, `fair`, `doubtful`, `unfit`).
-pub fn grade_from_name(name: &str) -> Option<Grade> {
-    [Grade::Sound, Grade::Fair, Grade::Doubtful, Grade::Unfit]
-        .into_iter()
-        .find(|g| g.name() == name)
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -892,6 +885,13 @@ mod tests {
         let j = serde_json::to_value(&v).unwrap();
         assert_eq!(j["decision"], "not_measured");
         assert!(j["reason"].as_str().unwrap().contains("unfit"));
+    }
+
+    /// Parses a grade name (`sound`, `fair`, `doubtful`, `unfit`).
+    fn grade_from_name(name: &str) -> Option<Grade> {
+        [Grade::Sound, Grade::Fair, Grade::Doubtful, Grade::Unfit]
+            .into_iter()
+            .find(|g| g.name() == name)
     }
 
     #[test]

@@ -126,7 +126,7 @@ use crate::fitting::fit::FitModel;
 use crate::fitting::pipeline::Measurement;
 use crate::fitting::quality::Grade;
 use crate::physics::membrane::Shape;
-use crate::physics::panel::{self, Panel, PanelSpec};
+use crate::physics::panel::{self, Panel, PanelSpec, ShapeKind};
 use serde::Serialize;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
@@ -804,10 +804,9 @@ impl<'b> Loader<'b> {
         let length = "a length with its unit, e.g. \"400mm\"";
         let shape_text = self.string(t, "shape", "\"rect\" or \"circle\"", false);
         let is_circle = match &shape_text {
-            Some((line, s)) => match s.to_lowercase().as_str() {
-                "rect" | "rectangle" | "rectangular" => Some(false),
-                "circle" | "round" | "circular" => Some(true),
-                _ => {
+            Some((line, s)) => match ShapeKind::from_name(s) {
+                Some(kind) => Some(kind == ShapeKind::Circle),
+                None => {
                     self.problem(
                         Some(*line),
                         format!("key 'shape': {s:?} is not a shape; write \"rect\" or \"circle\""),

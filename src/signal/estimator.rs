@@ -323,7 +323,9 @@ impl BandFit {
 /// `span[0]`). `noise_variance` is σ², the per-sample variance of white
 /// noise at the band's level (for coloured noise, the background's
 /// variance density at the band centre). For many bands of the same span
-/// use [`SpanAnalyser`], which transforms the span once.
+/// use [`SpanAnalyser`], which transforms the span once. Only tests call
+/// it (here and in `physics::evenness`); the pipeline uses [`SpanAnalyser`].
+#[cfg(test)]
 pub fn estimate_band(
     span: &[f64],
     sample_rate_hz: f64,
@@ -1003,9 +1005,6 @@ struct FitResult {
     iterations: usize,
     stop: StopReason,
     reduced_chi2: f64,
-    /// Σ|r_k|² over the noise variance of one real part, N·σ²/2: χ².
-    #[allow(dead_code)] // Kept for diagnostics printed in tests under debugging.
-    chi2: f64,
     /// Wald statistic eᵀ·C_e⁻¹·e of the baseline coefficients (0 without).
     baseline_wald: f64,
 }
@@ -1525,7 +1524,6 @@ impl FitProblem {
             iterations,
             stop,
             reduced_chi2,
-            chi2: Self::cost(&r) / self.bin_var,
             baseline_wald: inv
                 .as_ref()
                 .map(|inv| self.baseline_wald(theta, inv))

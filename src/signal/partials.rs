@@ -233,7 +233,7 @@ pub fn analyse_with(
     let guard = (0.005 * sr) as usize;
     let background = (tap.onset_found && tap.onset_sample > guard + spectrum::MIN_NOISE_SAMPLES)
         .then(|| &rec.samples[..tap.onset_sample - guard]);
-    let spec = spectrum::compute(span, background, sr, planner);
+    let spectrum = spectrum::compute(span, background, sr, planner);
     let mut warnings = Vec::new();
     if rec.clipped_fraction > 0.0 {
         warnings.push(Warning::Clipping {
@@ -255,8 +255,8 @@ pub fn analyse_with(
         .max_frequency_hz
         .unwrap_or(0.95 * sr / 2.0)
         .min(0.95 * sr / 2.0);
-    let mut found = pick_peaks(&spec, cfg.min_frequency_hz, fmax, cfg);
-    measure_decays(span, sr, &mut found, planner, &spec);
+    let mut found = pick_peaks(&spectrum, cfg.min_frequency_hz, fmax, cfg);
+    measure_decays(span, sr, &mut found, planner, &spectrum);
     found.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
 
     // Hum: near a mains harmonic and not decaying with the tap. In a steady
@@ -264,7 +264,7 @@ pub fn analyse_with(
     let mut partials = Vec::new();
     let mut hum = Vec::new();
     for p in found {
-        match hum_family(&p, &cfg.mains_hz, spec.background.as_ref()) {
+        match hum_family(&p, &cfg.mains_hz, spectrum.background.as_ref()) {
             Some((mains, k)) if tap.onset_found => hum.push(HumLine {
                 partial: p,
                 mains_hz: mains,
@@ -288,7 +288,7 @@ pub fn analyse_with(
     }
     let mut analysis = PartialAnalysis {
         tap,
-        spectrum: spec,
+        spectrum,
         partials,
         hum,
         warnings,
@@ -361,12 +361,12 @@ fn hum_family(
 /// δ = ½(p₋ − p₊)/(p₋ − 2p₀ + p₊) bins and the peak level p₀ − ¼(p₋ − p₊)δ.
 /// The zero padding of [`spectrum::ZERO_PAD_FACTOR`] keeps its bias far
 /// below the bin spacing.
-pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -> Vec<Partial> {
-    let pw = &spec.power;
-    let db = |k: usize| spec.power_to_db(pw[k]);
+pub fn pick_peaks(spectrum: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -> Vec<Partial> {
+    let pw = &spectrum.power;
+    let db = |k: usize| spectrum.power_to_db(pw[k]);
     let nb = pw.len();
-    let lo = ((fmin / spec.bin_hz).floor() as usize).max(1);
-    let hi = ((fmax / spec.bin_hz).ceil() as usize).min(nb.saturating_sub(2));
+    let lo = ((fmin / spectrum.bin_hz).floor() as usize).max(1);
+    let hi = ((fmax / spectrum.bin_hz).ceil() as usize).min(nb.saturating_sub(2));
     let mut cands: Vec<Partial> = Vec::new();
     // The padded spectrum is smooth: a peak must top its neighbours over
     // half a resolution bin either side.
@@ -386,11 +386,11 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
             continue;
         }
         // SNR test on power first: most local maxima are noise.
-        if v < spec.floor_power[k] * snr_factor {
+        if v < spectrum.floor_power[k] * snr_factor {
             continue;
         }
         let v = db(k);
-        let snr = v - spec.floor_db(k);
+        let snr = v - spectrum.floor_db(k);
         if snr < min_snr {
             continue;
         }
@@ -407,9 +407,9 @@ pub fn pick_peaks(spec: &Spectrum, fmin: f64, fmax: f64, cfg: &AnalysisConfig) -
         };
         let level = b - 0.25 * (a - c) * delta;
         cands.push(Partial {
-            frequency_hz: (k as f64 + delta) * spec.bin_hz,
+            frequency_hz: (k as f64 + delta) * spectrum.bin_hz,
             level_db: level,
-            snr_db: level - spec.floor_db(k),
+            snr_db: level - spectrum.floor_db(k),
             prominence_db: prom,
             decay_rate_db_per_s: None,
             t60_s: None,
@@ -568,7 +568,7 @@ fn measure_decays(
     sr: f64,
     partials: &mut [Partial],
     planner: &mut RealFftPlanner<f64>,
-    spec: &Spectrum,
+    spectrum: &Spectrum,
 ) {
     let n = span.len();
     // At least eight half-overlapping frames, between 256 and 8192 samples.
@@ -607,7 +607,7 @@ fn measure_decays(
             levels[p].push(output[k].norm_sqr());
         }
     }
-    let _ = (spec, hann_sq);
+    let _ = (spectrum, hann_sq);
     for (p, part) in partials.iter_mut().enumerate() {
         // The quietest frame stands for the noise at this frequency (or,
         // for a partial that outlasts the span, its last level); the fit
@@ -712,7 +712,7 @@ pub fn refine(
     }
     let sr = rec.sample_rate_hz;
     let span = &rec.samples[analysis.tap.onset_sample..analysis.tap.end_sample];
-    let spec = &analysis.spectrum;
+    let spectrum = &analysis.spectrum;
     let mut analyser = SpanAnalyser::new_with(span, sr, 0.0, planner);
     analyser.set_pencil_samples(pencil_samples);
     let resolution_hz = sr / analyser.samples_used().max(1) as f64;
@@ -744,7 +744,7 @@ pub fn refine(
             .map(|&f| (f - lo).abs().min((f - hi).abs()))
             .fold(f64::INFINITY, f64::min);
         let reach = (2.0 * resolution_hz).min(REFINE_NEIGHBOUR_FRACTION * gap);
-        analyser.set_noise_variance(noise_variance_at(spec, 0.5 * (lo + hi)));
+        analyser.set_noise_variance(noise_variance_at(spectrum, 0.5 * (lo + hi)));
         let fit = analyser.estimate(&BandConfig {
             centre_hz: 0.5 * (lo + hi),
             half_width_hz: 0.5 * (hi - lo) + reach,
@@ -800,7 +800,7 @@ pub fn refine(
             .max(4.0 * line_hwhm)
             .min(REFINE_NEIGHBOUR_FRACTION * gap)
             .min(REFINE_HALF_WIDTH_HZ);
-        analyser.set_noise_variance(noise_variance_at(spec, f0));
+        analyser.set_noise_variance(noise_variance_at(spectrum, f0));
         let fit = analyser.estimate(&BandConfig {
             centre_hz: f0,
             half_width_hz: half_width,
@@ -865,9 +865,9 @@ fn apply_fit(
 
 /// The noise variance per sample at `f_hz`, from the spectrum's floor
 /// (which is E|X_k|² = σ²·Σw² for white noise of variance σ²).
-fn noise_variance_at(spec: &Spectrum, f_hz: f64) -> f64 {
-    let k = spec.bin_of(f_hz).min(spec.floor_power.len() - 1);
-    spec.floor_power[k] / spec.window_sq_sum.max(1e-300)
+fn noise_variance_at(spectrum: &Spectrum, f_hz: f64) -> f64 {
+    let k = spectrum.bin_of(f_hz).min(spectrum.floor_power.len() - 1);
+    spectrum.floor_power[k] / spectrum.window_sq_sum.max(1e-300)
 }
 
 /// Makes `p` the single damped component `c`: its frequency with

@@ -605,11 +605,11 @@ fn decode_symphonia_inner(path: &Path, bytes: Vec<u8>, kind: Kind) -> Result<Dec
                 out.len() / channels as usize
             ))
         })?;
-        let spec = *decoded.spec();
-        if spec.channels.count() != channels as usize {
+        let signal_spec = *decoded.spec();
+        if signal_spec.channels.count() != channels as usize {
             return Err(corrupt(format!(
                 "the {name} stream changes from {channels} to {} channels",
-                spec.channels.count()
+                signal_spec.channels.count()
             )));
         }
         // Reuse the sample buffer while it is large enough (capacity counts
@@ -620,7 +620,8 @@ fn decode_symphonia_inner(path: &Path, bytes: Vec<u8>, kind: Kind) -> Result<Dec
         {
             buf = None;
         }
-        let b = buf.get_or_insert_with(|| SampleBuffer::new(decoded.capacity() as u64, spec));
+        let b =
+            buf.get_or_insert_with(|| SampleBuffer::new(decoded.capacity() as u64, signal_spec));
         b.copy_interleaved_ref(decoded);
         for &x in b.samples() {
             if float {
@@ -787,7 +788,7 @@ fn scan_header(path: &Path, b: &[u8]) -> Result<Header> {
 fn decode_with_hound(path: &Path, bytes: &[u8], header: &Header) -> Result<(Vec<f64>, Vec<bool>)> {
     let reader = hound::WavReader::new(std::io::Cursor::new(bytes))
         .map_err(|e| not_wav(path, &e.to_string()))?;
-    let spec = reader.spec();
+    let wav_spec = reader.spec();
     let mut out = Vec::with_capacity(header.data_len / (header.bits.max(8) as usize / 8).max(1));
     let mut hits = Vec::with_capacity(out.capacity());
     let decode_err = |e: hound::Error| {
@@ -797,7 +798,7 @@ fn decode_with_hound(path: &Path, bytes: &[u8], header: &Header) -> Result<(Vec<
             "export the recording again as PCM or float WAV",
         )
     };
-    match spec.sample_format {
+    match wav_spec.sample_format {
         hound::SampleFormat::Float => {
             for s in reader.into_samples::<f32>() {
                 let x = s.map_err(decode_err)? as f64;
@@ -806,7 +807,7 @@ fn decode_with_hound(path: &Path, bytes: &[u8], header: &Header) -> Result<(Vec<
             }
         }
         hound::SampleFormat::Int => {
-            let bits = spec.bits_per_sample as i32;
+            let bits = wav_spec.bits_per_sample as i32;
             let scale = 2f64.powi(bits - 1);
             let max = scale - 1.0;
             for s in reader.into_samples::<i32>() {
@@ -882,7 +883,7 @@ pub fn write_wav(
     bits: u16,
     float: bool,
 ) -> Result<()> {
-    let spec = hound::WavSpec {
+    let wav_spec = hound::WavSpec {
         channels: 1,
         sample_rate: sample_rate_hz,
         bits_per_sample: bits,
@@ -898,7 +899,7 @@ pub fn write_wav(
     };
     let tmp = crate::base::files::temp_path(path);
     {
-        let mut w = hound::WavWriter::create(&tmp, spec).map_err(|e| werr(e.to_string()))?;
+        let mut w = hound::WavWriter::create(&tmp, wav_spec).map_err(|e| werr(e.to_string()))?;
         let result: std::result::Result<(), hound::Error> = (|| {
             if float {
                 for &x in samples {
@@ -990,13 +991,13 @@ mod tests {
     fn pcm16_fast_path_equals_hound() {
         // Stereo 16-bit PCM written by hound, full scale at both ends.
         let path = std::env::temp_dir().join(format!("tonus-pcm16-{}.wav", std::process::id()));
-        let spec = hound::WavSpec {
+        let wav_spec = hound::WavSpec {
             channels: 2,
             sample_rate: 48_000,
             bits_per_sample: 16,
             sample_format: hound::SampleFormat::Int,
         };
-        let mut w = hound::WavWriter::create(&path, spec).unwrap();
+        let mut w = hound::WavWriter::create(&path, wav_spec).unwrap();
         for i in 0..4000i32 {
             let v = ((i * 7919) % 65536 - 32768) as i16;
             w.write_sample(v).unwrap();
