@@ -6,6 +6,7 @@
 //! into place, so an interrupted run never leaves a half-written output.
 
 pub mod batch;
+pub mod plot;
 pub mod png;
 
 use crate::base::files::write_atomic;
