@@ -106,3 +106,16 @@ pub(super) fn decision_colour(decision: &str) -> RGBColor {
         _ => INDETERMINATE_MARK,
     }
 }
+
+/// A value marked on a chart: (value, label, colour, dashed).
+pub(super) type Mark = (f64, String, RGBColor, bool);
+
+/// A mark drawn as a solid line.
+pub(super) fn solid(value: f64, label: String, colour: RGBColor) -> Mark {
+    (value, label, colour, false)
+}
+
+/// A mark drawn as a dashed line.
+pub(super) fn dashed(value: f64, label: String, colour: RGBColor) -> Mark {
+    (value, label, colour, true)
+}

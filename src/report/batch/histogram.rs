@@ -28,7 +28,7 @@ pub(super) struct HistogramPicture<'a> {
     pub(super) values: Vec<f64>,
     pub(super) view: (f64, f64),
     /// Vertical marks: (value, label, colour, dashed).
-    pub(super) marks: Vec<(f64, String, RGBColor, bool)>,
+    pub(super) marks: Vec<Mark>,
     /// (a value that must fall on a bin edge, the span that must hold a
     /// whole number of bins): the limits, so no bar straddles a limit.
     pub(super) anchor: (f64, f64),

@@ -62,29 +62,26 @@ pub(super) fn pictures(s: &BatchSummary) -> std::result::Result<Pictures, String
 
 /// The histogram of the fitted tension against the limits.
 fn tension_histogram(s: &BatchSummary, values: &[f64]) -> Result<Picture, String> {
-    let mean = stats::mean(&values);
+    let mean = stats::mean(values);
     let mut marks = vec![
-        (
+        solid(
             s.lower_n_per_m,
             format!("L {:.0} N/m", s.lower_n_per_m),
             LIMIT,
-            false,
         ),
-        (
+        solid(
             s.upper_n_per_m,
             format!("H {:.0} N/m", s.upper_n_per_m),
             LIMIT,
-            false,
         ),
-        (
+        dashed(
             s.nominal_n_per_m,
             format!("nominal {:.0}", s.nominal_n_per_m),
             NOMINAL,
-            true,
         ),
     ];
     if let Some(m) = mean {
-        marks.push((m, format!("mean {m:.1}"), CENTRE, true));
+        marks.push(dashed(m, format!("mean {m:.1}"), CENTRE));
     }
     let png = histogram_png(&HistogramPicture {
         title: format!("Fitted tension — {} v{}", s.spec_name, s.spec_version),
@@ -97,7 +94,7 @@ fn tension_histogram(s: &BatchSummary, values: &[f64]) -> Result<Picture, String
             s.rule
         ),
         x_label: "tension [N/m]",
-        view: value_view(&values, s.lower_n_per_m, s.upper_n_per_m),
+        view: value_view(values, s.lower_n_per_m, s.upper_n_per_m),
         anchor: (s.lower_n_per_m, s.upper_n_per_m - s.lower_n_per_m),
         bin_count: bin_count(values.len()),
         x_digits: 0,
@@ -117,13 +114,13 @@ fn anisotropy_histogram(s: &BatchSummary, aniso: Vec<f64>) -> Result<Picture, St
     let lim = s.max_anisotropy_percent.unwrap_or(amax.max(1.0));
     // Labels alternate between two rows in this order: the mean sits
     // in the other row from the limits and from 0.
-    let mut marks = vec![(0.0, "0 %".to_string(), NOMINAL, true)];
+    let mut marks = vec![dashed(0.0, "0 %".to_string(), NOMINAL)];
     if let Some(m) = stats::mean(&aniso) {
-        marks.push((m, format!("mean {m:.2} %"), CENTRE, true));
+        marks.push(dashed(m, format!("mean {m:.2} %"), CENTRE));
     }
     if let Some(m) = s.max_anisotropy_percent {
-        marks.push((m, format!("limit +{m} %"), LIMIT, false));
-        marks.push((-m, format!("limit −{m} %"), LIMIT, false));
+        marks.push(solid(m, format!("limit +{m} %"), LIMIT));
+        marks.push(solid(-m, format!("limit −{m} %"), LIMIT));
     }
     let png = histogram_png(&HistogramPicture {
         title: format!("Anisotropy — {} v{}", s.spec_name, s.spec_version),
@@ -155,10 +152,10 @@ fn unevenness_histogram(s: &BatchSummary, uneven: Vec<f64>) -> Result<Picture, S
     let lim = s.max_unevenness_percent.unwrap_or(vmax.max(1.0));
     let mut marks = Vec::new();
     if let Some(m) = s.max_unevenness_percent {
-        marks.push((m, format!("limit {m} %"), LIMIT, false));
+        marks.push(solid(m, format!("limit {m} %"), LIMIT));
     }
     if let Some(m) = stats::mean(&uneven) {
-        marks.push((m, format!("mean {m:.2} %"), CENTRE, true));
+        marks.push(dashed(m, format!("mean {m:.2} %"), CENTRE));
     }
     let png = histogram_png(&HistogramPicture {
         title: format!("Unevenness — {} v{}", s.spec_name, s.spec_version),

@@ -64,7 +64,7 @@ fn draw_individuals(
     view_values.push(chart_stats.ucl);
     view_values.push(chart_stats.lcl);
     let (lo, hi) = value_view(&view_values, s.lower_n_per_m, s.upper_n_per_m);
-    let mut chart = ChartBuilder::on(&top)
+    let mut chart = ChartBuilder::on(top)
         .margin_left(10)
         .margin_right(150)
         .margin_top(14)
@@ -101,42 +101,28 @@ fn draw_reference_lines(
     (lo, hi): (f64, f64),
     x_end: f64,
 ) -> Result<(), String> {
-    let labelled: Vec<(f64, String, RGBColor, bool)> = vec![
-        (
-            s.upper_n_per_m,
-            format!("H {:.0}", s.upper_n_per_m),
-            LIMIT,
-            false,
-        ),
-        (
-            s.lower_n_per_m,
-            format!("L {:.0}", s.lower_n_per_m),
-            LIMIT,
-            false,
-        ),
-        (
+    let labelled: Vec<Mark> = vec![
+        solid(s.upper_n_per_m, format!("H {:.0}", s.upper_n_per_m), LIMIT),
+        solid(s.lower_n_per_m, format!("L {:.0}", s.lower_n_per_m), LIMIT),
+        dashed(
             s.nominal_n_per_m,
             format!("nominal {:.0}", s.nominal_n_per_m),
             NOMINAL,
-            true,
         ),
-        (
+        solid(
             chart_stats.centre,
             format!("centre {:.1}", chart_stats.centre),
             CENTRE,
-            false,
         ),
-        (
+        dashed(
             chart_stats.ucl,
             format!("UCL {:.1}", chart_stats.ucl),
             CONTROL,
-            true,
         ),
-        (
+        dashed(
             chart_stats.lcl,
             format!("LCL {:.1}", chart_stats.lcl),
             CONTROL,
-            true,
         ),
     ];
     let mut labels: Vec<(i32, i32, (&String, &RGBColor))> = Vec::new();
@@ -272,7 +258,7 @@ fn draw_moving_ranges(
         .min(3.0 * chart_stats.moving_range_ucl.max(f64::MIN_POSITIVE))
         * 1.12;
     let mr_top = if mr_top > 0.0 { mr_top } else { 1.0 };
-    let mut mr_chart = ChartBuilder::on(&bottom)
+    let mut mr_chart = ChartBuilder::on(bottom)
         .margin_left(10)
         .margin_right(150)
         .margin_top(8)
@@ -312,17 +298,15 @@ fn draw_moving_ranges(
         }))
         .map_err(draw_err)?;
     let mr_lines = [
-        (
+        solid(
             chart_stats.average_moving_range,
             format!("mean MR {:.1}", chart_stats.average_moving_range),
             CENTRE,
-            false,
         ),
-        (
+        dashed(
             chart_stats.moving_range_ucl,
             format!("MR limit {:.1}", chart_stats.moving_range_ucl),
             CONTROL,
-            true,
         ),
     ];
     for (y, label, colour, dashed) in mr_lines {

@@ -161,8 +161,8 @@ fn spread(values: &[f64], pics: &Pictures) -> String {
             b,
             "{} measured recordings; mean {} N/m, sample standard deviation s = {} N/m, range {} … {} N/m. About √n bins, with edges on the limits; the red lines are the limits L and H.",
             values.len(),
-            opt(stats::mean(&values), 1),
-            opt(stats::std_dev(&values), 2),
+            opt(stats::mean(values), 1),
+            opt(stats::std_dev(values), 2),
             opt(values.iter().copied().reduce(f64::min), 1),
             opt(values.iter().copied().reduce(f64::max), 1)
         );
@@ -175,7 +175,7 @@ fn spread(values: &[f64], pics: &Pictures) -> String {
 /// The individuals chart and its signals.
 fn run_chart(pts: &[(usize, &BatchEntry)], values: &[f64], pics: &Pictures) -> String {
     let mut b = String::new();
-    match stats::individuals_chart(&values) {
+    match stats::individuals_chart(values) {
         Some(c) => {
             if pics.has(RUN_CHART_NAME) {
                 let _ = writeln!(b, "![Individuals chart of the tension]({RUN_CHART_NAME})\n");
@@ -233,7 +233,7 @@ fn run_chart(pts: &[(usize, &BatchEntry)], values: &[f64], pics: &Pictures) -> S
 /// Capability indices against the limits.
 fn capability(s: &BatchSummary, values: &[f64]) -> String {
     let mut b = String::new();
-    let (within, overall) = capabilities(&values, s);
+    let (within, overall) = capabilities(values, s);
     b.push_str("Formulas after the NIST/SEMATECH e-Handbook §6.1.6, with USL = H and LSL = L:\n\n");
     b.push_str("- Cp = (USL − LSL)/(6σ̂), Cpk = min(USL − μ, μ − LSL)/(3σ̂) with the short-term σ̂ = MR̄/d₂ from the moving ranges;\n");
     b.push_str("- Pp = (USL − LSL)/(6s), Ppk = min(USL − μ, μ − LSL)/(3s) with the overall sample standard deviation s.\n\n");

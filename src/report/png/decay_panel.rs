@@ -40,21 +40,12 @@ pub(super) fn draw_decay_panel(area: &Area<'_>, plot: &SpectrumPlot) -> Result<(
         .y_label_area_size(Y_LABEL_AREA_PX)
         .build_cartesian_2d(0.0..x_max, (lo..hi).log_scale())
         .map_err(draw_err)?;
-    let x_fmt = |v: &f64| format!("{v:.0}");
     let y_fmt = |v: &f64| crate::base::units::sig(*v, 2);
-    chart
-        .configure_mesh()
-        .x_labels(14)
+    panel_mesh(&mut chart.configure_mesh())
         .y_labels(8)
-        .x_label_formatter(&x_fmt)
         .y_label_formatter(&y_fmt)
         .x_desc("frequency (Hz)")
         .y_desc("T60 (s)")
-        .label_style(font(14.0).color(&INK))
-        .axis_desc_style(font(16.0).color(&INK))
-        .bold_line_style(GRID_BOLD_COLOUR)
-        .light_line_style(GRID_LIGHT_COLOUR)
-        .axis_style(RGBColor(120, 120, 120))
         .draw()
         .map_err(draw_err)?;
     let visible = |p: &&PlotPartial| {

@@ -22,7 +22,6 @@ pub(super) fn draw_residual_panel(area: &Area<'_>, plot: &SpectrumPlot) -> Resul
         .y_label_area_size(Y_LABEL_AREA_PX)
         .build_cartesian_2d(0.0..x_max, -half..half)
         .map_err(draw_err)?;
-    let x_fmt = |v: &f64| format!("{v:.0}");
     // Whole cents; zero unsigned so the axis reads -5, 0, +5.
     let y_fmt = |v: &f64| {
         if v.abs() < 0.5 {
@@ -31,19 +30,11 @@ pub(super) fn draw_residual_panel(area: &Area<'_>, plot: &SpectrumPlot) -> Resul
             format!("{v:+.0}")
         }
     };
-    chart
-        .configure_mesh()
-        .x_labels(14)
+    panel_mesh(&mut chart.configure_mesh())
         .y_labels(9)
-        .x_label_formatter(&x_fmt)
         .y_label_formatter(&y_fmt)
         .x_desc("frequency (Hz)")
         .y_desc("residual (cents)")
-        .label_style(font(14.0).color(&INK))
-        .axis_desc_style(font(16.0).color(&INK))
-        .bold_line_style(GRID_BOLD_COLOUR)
-        .light_line_style(GRID_LIGHT_COLOUR)
-        .axis_style(RGBColor(120, 120, 120))
         .draw()
         .map_err(draw_err)?;
 

@@ -33,20 +33,11 @@ pub(super) fn draw_spectrum_panel<'b>(
         .y_label_area_size(Y_LABEL_AREA_PX)
         .build_cartesian_2d(0.0..x_max, y_lo..y_hi)
         .map_err(draw_err)?;
-    let x_fmt = |v: &f64| format!("{v:.0}");
     let y_fmt = |v: &f64| format!("{v:.0}");
-    chart
-        .configure_mesh()
-        .x_labels(14)
+    panel_mesh(&mut chart.configure_mesh())
         .y_labels(10)
-        .x_label_formatter(&x_fmt)
         .y_label_formatter(&y_fmt)
         .y_desc("level (dB re full-scale sine)")
-        .label_style(font(14.0).color(&INK))
-        .axis_desc_style(font(16.0).color(&INK))
-        .bold_line_style(GRID_BOLD_COLOUR)
-        .light_line_style(GRID_LIGHT_COLOUR)
-        .axis_style(RGBColor(120, 120, 120))
         .draw()
         .map_err(draw_err)?;
     draw_mode_lines(&mut chart, plot, (y_lo, y_hi))?;

@@ -1,7 +1,12 @@
 //! The spectrum picture's layout and colours, how each kind of mode line
 //! is drawn, and the bookkeeping that keeps labels from overlapping.
 
+use plotters::chart::MeshStyle;
+use plotters::coord::ranged1d::Ranged;
+use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
+
+use crate::report::plot::font;
 
 use super::model::PlotLine;
 
@@ -110,4 +115,23 @@ impl LineKind {
             LineKind::Weak => "predicted mode, expected weak",
         }
     }
+}
+
+/// A frequency tick label: whole hertz.
+fn whole_hz(v: &f64) -> String {
+    format!("{v:.0}")
+}
+
+/// What every panel's mesh shares: 14 frequency ticks in whole hertz, the
+/// fonts, the grid and the axis colour.
+pub(super) fn panel_mesh<'a, 'b, 'm, Y: Ranged>(
+    mesh: &'m mut MeshStyle<'a, 'b, RangedCoordf64, Y, BitMapBackend<'a>>,
+) -> &'m mut MeshStyle<'a, 'b, RangedCoordf64, Y, BitMapBackend<'a>> {
+    mesh.x_labels(14)
+        .x_label_formatter(&whole_hz)
+        .label_style(font(14.0).color(&INK))
+        .axis_desc_style(font(16.0).color(&INK))
+        .bold_line_style(GRID_BOLD_COLOUR)
+        .light_line_style(GRID_LIGHT_COLOUR)
+        .axis_style(RGBColor(120, 120, 120))
 }
