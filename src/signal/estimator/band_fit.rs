@@ -16,7 +16,7 @@ pub(super) fn fit_with_rejection(
     problem: &mut FitProblem,
     mut free: Vec<C64>,
     fixed: &[C64],
-) -> (FitResult, usize, usize) {
+) -> (PoleFit, usize, usize) {
     let mut rejected = 0usize;
     let mut iterations = 0usize;
     loop {
@@ -72,7 +72,7 @@ pub(super) struct FittedComponent {
     pub(super) growth_z: f64,
 }
 
-pub(super) struct FitResult {
+pub(super) struct PoleFit {
     pub(super) free: Vec<FittedComponent>,
     pub(super) iterations: usize,
     pub(super) stop: StopReason,
@@ -277,7 +277,7 @@ impl FitProblem {
     /// problem; it is reached in a few iterations where moving poles and
     /// amplitudes together crawled along their correlation. The
     /// covariance then comes from the full Jacobian ([`FitProblem::finish`]).
-    pub(super) fn solve(&mut self, free: &[C64], fixed: &[C64]) -> FitResult {
+    pub(super) fn solve(&mut self, free: &[C64], fixed: &[C64]) -> PoleFit {
         let nfree = free.len();
         let mut poles = free.to_vec();
         let Some(mut at) = self.project(&poles, fixed) else {
@@ -464,7 +464,7 @@ impl FitProblem {
     /// linear ones starting at their least-squares values for those poles:
     /// the fallback of [`FitProblem::solve`] where the linear columns are
     /// degenerate at the start.
-    pub(super) fn solve_full(&mut self, free: &[C64], fixed: &[C64]) -> FitResult {
+    pub(super) fn solve_full(&mut self, free: &[C64], fixed: &[C64]) -> PoleFit {
         let nfree = free.len();
         let ncomp = nfree + fixed.len();
         let np = 2 * nfree + 2 * ncomp + 2 * self.baseline_terms;
@@ -556,7 +556,7 @@ impl FitProblem {
         fixed: &[C64],
         iterations: usize,
         stop: StopReason,
-    ) -> FitResult {
+    ) -> PoleFit {
         let np = theta.len();
         let nb = self.data.len();
         // Covariance at the solution.
@@ -601,7 +601,7 @@ impl FitProblem {
                 growth_z,
             });
         }
-        FitResult {
+        PoleFit {
             free: out,
             iterations,
             stop,

@@ -494,7 +494,7 @@ fn fit_and_prune(
     free: Vec<C64>,
     fixed: &[C64],
     out: &mut BandFit,
-) -> FitResult {
+) -> PoleFit {
     let (mut result, mut rejected, iters) = fit_with_rejection(problem, free, fixed);
     out.iterations += iters;
     if !result.free.is_empty() && result.baseline_wald < BASELINE_CHI2 {

@@ -103,15 +103,20 @@ mod tests {
         let a = analyse(&rec, &AnalysisConfig::default()).unwrap();
         assert_eq!(a.partials.len(), 3, "{:?}", a.partials);
         for (p, &(f, _, t60)) in a.partials.iter().zip(&parts) {
-            // Tolerances: 0.1 Hz (a quarter of a cent at 400 Hz) allows for
-            // the skirt of a stronger neighbour pulling a fast-decaying peak;
-            // 10 % on T60 allows for the frame-level fit near the noise.
+            // The refinement claims a standard uncertainty for each
+            // frequency (its covariance at the solution, with the noise
+            // measured before the tap); the error must lie within 3u of
+            // it, and u must be what a damped-sinusoid fit gives at this
+            // SNR (far below the 0.1 Hz an FFT peak would be held to).
+            let u = p.frequency_u_hz.expect("default analysis refines");
             assert!(
-                (p.frequency_hz - f).abs() < 0.1,
-                "{} vs {}",
+                (p.frequency_hz - f).abs() <= 3.0 * u,
+                "{} vs {} (u = {u})",
                 p.frequency_hz,
                 f
             );
+            assert!(u > 0.0 && u < 0.005, "u = {u} Hz at {f} Hz");
+            // 10 % on T60 allows for the frame-level fit near the noise.
             let t = p.t60_s.unwrap();
             assert!((t / t60 - 1.0).abs() < 0.1, "T60 {t} vs {t60}");
         }
