@@ -439,6 +439,7 @@ pub fn fit_free_aspect(obs: &[Observation], width_m: f64) -> Option<FitResult> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::base::estimate::assert_same_estimate;
     use crate::physics::membrane::rect_mode_frequency_hz;
     use crate::physics::synth::Rng;
 
@@ -525,20 +526,6 @@ mod tests {
         }
     }
 
-    /// |new − old| < 0.01·u and the uncertainty itself within 0.1 %.
-    fn assert_same(what: &str, new: Estimate, value: f64, u: f64) {
-        assert!(
-            (new.value - value).abs() < 0.01 * u,
-            "{what}: {} vs {value} (u {u})",
-            new.value
-        );
-        assert!(
-            (new.standard_uncertainty / u - 1.0).abs() < 1e-3,
-            "{what}: u {} vs {u}",
-            new.standard_uncertainty
-        );
-    }
-
     #[test]
     fn free_aspect_agrees_with_the_levenberg_marquardt_fit() {
         // Expected values: printed by the Levenberg–Marquardt fit (the
@@ -585,8 +572,8 @@ mod tests {
         ];
         for (obs, [c, u_c, ly, u_ly], ln_ab, cov, outliers) in cases {
             let f = fit_free_aspect(&obs, 0.4).unwrap();
-            assert_same("c", f.wave_speed, c, u_c);
-            assert_same("Ly", f.effective_height_m.unwrap(), ly, u_ly);
+            assert_same_estimate("c", f.wave_speed, c, u_c);
+            assert_same_estimate("Ly", f.effective_height_m.unwrap(), ly, u_ly);
             let (p, q) = f.two_term.unwrap();
             for k in 0..2 {
                 let u = q[2 * k].sqrt();

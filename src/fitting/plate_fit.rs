@@ -184,6 +184,7 @@ pub fn fit(obs: &[(f64, f64)], sigma: Option<f64>) -> Option<PlateFit> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::base::estimate::assert_same_estimate;
     use crate::physics::plate::{frequency_hz, k_squared};
 
     #[test]
@@ -249,20 +250,6 @@ mod tests {
         obs
     }
 
-    /// |new − old| < 0.01·u and the uncertainty itself within 0.1 %.
-    fn assert_same(what: &str, new: Estimate, value: f64, u: f64) {
-        assert!(
-            (new.value - value).abs() < 0.01 * u,
-            "{what}: {} vs {value} (u {u})",
-            new.value
-        );
-        assert!(
-            (new.standard_uncertainty / u - 1.0).abs() < 1e-3,
-            "{what}: u {} vs {u}",
-            new.standard_uncertainty
-        );
-    }
-
     #[test]
     fn argmin_agrees_with_the_hand_written_gauss_newton() {
         // Expected values: printed by the hand-written Gauss–Newton this
@@ -316,15 +303,15 @@ mod tests {
         ];
         for (obs, [p, u_p, q, u_q, corr], negative) in cases {
             let f = fit(&obs, Some(0.5)).unwrap();
-            assert_same("T/σ", f.t_over_sigma, p, u_p);
-            assert_same("D/σ", f.d_over_sigma, q, u_q);
+            assert_same_estimate("T/σ", f.t_over_sigma, p, u_p);
+            assert_same_estimate("D/σ", f.d_over_sigma, q, u_q);
             assert!(
                 (f.correlation - corr).abs() < 1e-4,
                 "{} vs {corr}",
                 f.correlation
             );
             match (f.negative_d_over_sigma, negative) {
-                (Some(e), Some([v, u])) => assert_same("negative D/σ", e, v, u),
+                (Some(e), Some([v, u])) => assert_same_estimate("negative D/σ", e, v, u),
                 (None, None) => {}
                 (got, want) => panic!("negative D/σ: {got:?} vs {want:?}"),
             }
