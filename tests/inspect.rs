@@ -336,10 +336,16 @@ fn watch_decides_a_recording_dropped_into_the_folder() {
     // One big line: the decision framed, the tension, the margin.
     assert!(line.starts_with("======"), "{line}");
     assert!(line.contains(" PASS "), "{line}");
-    assert!(
-        line.contains("T = 2000.0 N/m") || line.contains("T = 1999.9 N/m"),
-        "{line}"
-    );
+    // The tension as a number: synthesised at 2000 N/m, read within
+    // 0.05 % (a 12 ms fit of a clean synthetic panel; the corpus and the
+    // fit tests hold the accuracy itself).
+    let t: f64 = line
+        .split("T = ")
+        .nth(1)
+        .and_then(|s| s.split(" N/m").next())
+        .and_then(|s| s.trim().parse().ok())
+        .unwrap_or_else(|| panic!("no `T = … N/m` in {line}"));
+    assert!((t - 2000.0).abs() <= 1.0, "T = {t} in {line}");
     assert!(line.contains("margin +"), "{line}");
     assert!(!seen.iter().any(|l| l.contains("old.wav")), "{seen:#?}");
     // The history row.

@@ -21,6 +21,7 @@ use crate::app::commands;
 use crate::base::error::{Result, TonusError};
 use crate::fitting::fit::FitModel;
 use crate::fitting::measurement::FitOptions;
+use crate::fitting::measurement::Measurement;
 use crate::fitting::quality::Grade;
 use crate::physics::panel::{Panel, PanelSpec};
 use crate::signal::recording::ChannelChoice;
@@ -264,54 +265,8 @@ pub fn score_case_scaled(case: &Path, with_tap: bool, scale: (f64, f64)) -> Resu
         other => FitModel::from_name(other)
             .ok_or_else(|| corpus_error(&truth_path, &format!("unknown model {other}")))?,
     };
-    let shape = inputs
-        .get("shape")
-        .and_then(Value::as_str)
-        .unwrap_or("rect");
-    let mut spec = PanelSpec {
-        shape: Some(shape.to_string()),
-        areal_density: num(inputs, "sigma_kg_m2").map(|s| format!("{s}kg/m2")),
-        ..PanelSpec::default()
-    };
-    let (lx, ly) = (num(inputs, "lx_m"), num(inputs, "ly_m"));
-    if shape == "circle" {
-        spec.diameter = num(inputs, "diameter_m").map(|d| format!("{}m", d * scale.0));
-    } else {
-        spec.width = lx.map(|v| format!("{}m", v * scale.0));
-        spec.height = ly.map(|v| format!("{}m", v * scale.1));
-    }
-    if with_tap {
-        let ex = t.get("excitation").cloned().unwrap_or(Value::Null);
-        spec.tap_at = if shape == "circle" {
-            ex.get("tap_r_theta").and_then(|v| {
-                let r = v.get(0)?.as_f64()?;
-                let th = v.get(1)?.as_f64()?;
-                Some(format!("{r},{}", th.to_degrees()))
-            })
-        } else {
-            ex.get("tap_xy_m").and_then(|v| {
-                let x = v.get(0)?.as_f64()? / lx?;
-                let y = v.get(1)?.as_f64()? / ly?;
-                Some(format!("{x},{y}"))
-            })
-        };
-    }
-    let modes: Vec<TrueMode> = t
-        .get("modes")
-        .and_then(Value::as_array)
-        .map(|a| {
-            a.iter()
-                .filter_map(|m| {
-                    Some(TrueMode {
-                        m: m.get("m")?.as_u64()? as u32,
-                        n: m.get("n")?.as_u64()? as u32,
-                        freq_hz: num(m, "freq_hz")?,
-                        expected: m.get("expected").and_then(Value::as_bool) == Some(true),
-                    })
-                })
-                .collect()
-        })
-        .unwrap_or_default();
+    let spec = case_panel(&t, inputs, with_tap, scale);
+    let modes = true_modes(&t);
     let mut score = CaseScore {
         id,
         category,
@@ -362,17 +317,88 @@ pub fn score_case_scaled(case: &Path, with_tap: bool, scale: (f64, f64)) -> Resu
         .plate
         .as_ref()
         .and_then(|p| p.bending_stiffness.map(|d| d.value));
-    if let Some(tension) = m.tension {
-        // Biaxial: either equivalent solution is right; score the nearer.
-        let reference = match equivalent_t {
-            Some(eq) if (tension.value - eq).abs() < (tension.value - true_t).abs() => eq,
-            _ => true_t,
-        };
-        score.tension_n_per_m = Some(tension.value);
-        score.tension_u_n_per_m = Some(tension.standard_uncertainty);
-        score.error = Some(tension.value / reference - 1.0);
-        score.z = Some((tension.value - reference) / tension.standard_uncertainty.max(1e-300));
+    score_tension(&mut score, &m, true_t, equivalent_t);
+    score_labels(&mut score, &m, &modes, model == FitModel::Biaxial);
+    Ok(score)
+}
+
+/// The panel a case's inputs describe, with the entered sides scaled and
+/// the tap point when asked for.
+fn case_panel(t: &Value, inputs: &Value, with_tap: bool, scale: (f64, f64)) -> PanelSpec {
+    let shape = inputs
+        .get("shape")
+        .and_then(Value::as_str)
+        .unwrap_or("rect");
+    let mut spec = PanelSpec {
+        shape: Some(shape.to_string()),
+        areal_density: num(inputs, "sigma_kg_m2").map(|s| format!("{s}kg/m2")),
+        ..PanelSpec::default()
+    };
+    let (lx, ly) = (num(inputs, "lx_m"), num(inputs, "ly_m"));
+    if shape == "circle" {
+        spec.diameter = num(inputs, "diameter_m").map(|d| format!("{}m", d * scale.0));
+    } else {
+        spec.width = lx.map(|v| format!("{}m", v * scale.0));
+        spec.height = ly.map(|v| format!("{}m", v * scale.1));
     }
+    if with_tap {
+        let ex = t.get("excitation").cloned().unwrap_or(Value::Null);
+        spec.tap_at = if shape == "circle" {
+            ex.get("tap_r_theta").and_then(|v| {
+                let r = v.get(0)?.as_f64()?;
+                let th = v.get(1)?.as_f64()?;
+                Some(format!("{r},{}", th.to_degrees()))
+            })
+        } else {
+            ex.get("tap_xy_m").and_then(|v| {
+                let x = v.get(0)?.as_f64()? / lx?;
+                let y = v.get(1)?.as_f64()? / ly?;
+                Some(format!("{x},{y}"))
+            })
+        };
+    }
+    spec
+}
+
+/// The true modes of a case.
+fn true_modes(t: &Value) -> Vec<TrueMode> {
+    t.get("modes")
+        .and_then(Value::as_array)
+        .map(|a| {
+            a.iter()
+                .filter_map(|m| {
+                    Some(TrueMode {
+                        m: m.get("m")?.as_u64()? as u32,
+                        n: m.get("n")?.as_u64()? as u32,
+                        freq_hz: num(m, "freq_hz")?,
+                        expected: m.get("expected").and_then(Value::as_bool) == Some(true),
+                    })
+                })
+                .collect()
+        })
+        .unwrap_or_default()
+}
+
+/// The tension's error and z-score against the truth (biaxial: against
+/// the nearer of the two equivalent solutions).
+fn score_tension(score: &mut CaseScore, m: &Measurement, true_t: f64, equivalent_t: Option<f64>) {
+    let Some(tension) = m.tension else {
+        return;
+    };
+    // Biaxial: either equivalent solution is right; score the nearer.
+    let reference = match equivalent_t {
+        Some(eq) if (tension.value - eq).abs() < (tension.value - true_t).abs() => eq,
+        _ => true_t,
+    };
+    score.tension_n_per_m = Some(tension.value);
+    score.tension_u_n_per_m = Some(tension.standard_uncertainty);
+    score.error = Some(tension.value / reference - 1.0);
+    score.z = Some((tension.value - reference) / tension.standard_uncertainty.max(1e-300));
+}
+
+/// Recall of the expected modes and the labels that no true mode at their
+/// frequency carries (a biaxial fit may carry the swapped labels).
+fn score_labels(score: &mut CaseScore, m: &Measurement, modes: &[TrueMode], swap_ok: bool) {
     // Every reported frequency with its labels (split-pair members too).
     let mut reported: Vec<(f64, Vec<(u32, u32)>)> = Vec::new();
     for r in &m.modes {
@@ -396,7 +422,6 @@ pub fn score_case_scaled(case: &Path, with_tap: bool, scale: (f64, f64)) -> Resu
             .count();
         score.recall = Some((found, expected.len()));
     }
-    let swap_ok = model == FitModel::Biaxial;
     for r in &m.modes {
         let labels = parse_labels(&r.labels);
         // The true modes this report sits on; a label is wrong when none
@@ -417,7 +442,6 @@ pub fn score_case_scaled(case: &Path, with_tap: bool, scale: (f64, f64)) -> Resu
             score.wrong_labels += 1;
         }
     }
-    Ok(score)
 }
 
 /// The `tonus fit` arguments (after the recording) that a case's inputs

@@ -35,6 +35,22 @@ pub fn outlier_limit(values: &[f64], floor: f64) -> Option<(f64, f64)> {
     Some((med, (OUTLIER_MADS * 1.4826 * dev[dev.len() / 2]).max(floor)))
 }
 
+/// For tests comparing a solver with the values of the one it replaced:
+/// |new − old| < 0.01·u and the uncertainty itself within 0.1 %.
+#[cfg(test)]
+pub fn assert_same_estimate(what: &str, new: Estimate, value: f64, u: f64) {
+    assert!(
+        (new.value - value).abs() < 0.01 * u,
+        "{what}: {} vs {value} (u {u})",
+        new.value
+    );
+    assert!(
+        (new.standard_uncertainty / u - 1.0).abs() < 1e-3,
+        "{what}: u {} vs {u}",
+        new.standard_uncertainty
+    );
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -152,19 +152,35 @@ pub fn budget(inp: &BudgetInputs) -> Budget {
         sensitivity: "1".into(),
         contribution_n_per_m: inp.u_fit,
     }];
-    let c_sigma = sens(
-        |s| tension_for(&inp.shape, s, inp.air_loaded, f, md),
-        inp.sigma,
-    );
     if let Some(cal) = inp.calibration {
-        rows.push(BudgetRow {
+        rows.extend(calibration_rows(cal, t0));
+    }
+    rows.push(density_row(inp));
+    rows.extend(dimension_rows(inp));
+    // Each row's contribution is |cᵢ|·u(xᵢ); the inputs are uncorrelated.
+    let contributions: Vec<f64> = rows.iter().map(|r| r.contribution_n_per_m).collect();
+    let uc = combined_standard_uncertainty(&vec![1.0; rows.len()], &contributions, None);
+    Budget {
+        tension_n_per_m: t0,
+        rows,
+        combined_standard_uncertainty_n_per_m: uc,
+        coverage_factor: COVERAGE_FACTOR,
+        expanded_uncertainty_n_per_m: COVERAGE_FACTOR * uc,
+    }
+}
+
+/// The calibration's two terms: its reference tension and its per-mode
+/// factors.
+fn calibration_rows(cal: crate::fitting::calibration::CalibrationTerm, t0: f64) -> [BudgetRow; 2] {
+    [
+        BudgetRow {
             source: "calibration: reference tension (Type B, common to all modes)".into(),
             estimate: "factors r(m,n)".into(),
             standard_uncertainty: format!("{:.4} % of T_ref", 100.0 * cal.u_rel_reference),
             sensitivity: "T/T_ref".into(),
             contribution_n_per_m: t0 * cal.u_rel_reference,
-        });
-        rows.push(BudgetRow {
+        },
+        BudgetRow {
             source: format!(
                 "calibration: per-mode factors, {} modes (Type A/B)",
                 cal.modes
@@ -173,8 +189,18 @@ pub fn budget(inp: &BudgetInputs) -> Budget {
             standard_uncertainty: format!("{:.4} % of T", 100.0 * cal.u_rel_factors),
             sensitivity: "1".into(),
             contribution_n_per_m: t0 * cal.u_rel_factors,
-        });
-    }
+        },
+    ]
+}
+
+/// The areal density's term (zero sensitivity with a calibration made
+/// with the same σ, against which it cancels).
+fn density_row(inp: &BudgetInputs) -> BudgetRow {
+    let (f, md) = (inp.frequencies_hz, inp.modes);
+    let c_sigma = sens(
+        |s| tension_for(&inp.shape, s, inp.air_loaded, f, md),
+        inp.sigma,
+    );
     // With a calibration made with the same σ and geometry, both cancel.
     let (c_sigma, note_cal) = if inp.calibration.is_some() {
         (0.0, ", cancels against the calibration")
@@ -182,7 +208,7 @@ pub fn budget(inp: &BudgetInputs) -> Budget {
         (c_sigma, "")
     };
     let u_sigma = inp.u_sigma.unwrap_or(0.0);
-    rows.push(BudgetRow {
+    BudgetRow {
         source: format!(
             "areal density σ (Type B{}{note_cal})",
             if inp.u_sigma.is_none() {
@@ -195,7 +221,14 @@ pub fn budget(inp: &BudgetInputs) -> Budget {
         standard_uncertainty: format!("{u_sigma:.5} kg/m²"),
         sensitivity: format!("{c_sigma:.4} (N/m)/(kg/m²)"),
         contribution_n_per_m: (c_sigma * u_sigma).abs(),
-    });
+    }
+}
+
+/// The terms of the sides (rectangle) or the diameter (circle), which
+/// cancel against a calibration made with the same geometry.
+fn dimension_rows(inp: &BudgetInputs) -> Vec<BudgetRow> {
+    let (f, md) = (inp.frequencies_hz, inp.modes);
+    let mut rows = Vec::new();
     let u_l = inp.u_size.unwrap_or(0.0);
     let note = match (inp.u_size.is_none(), inp.calibration.is_some()) {
         (true, false) => ", no uncertainty given",
@@ -268,16 +301,7 @@ pub fn budget(inp: &BudgetInputs) -> Budget {
             dim_row("diameter d", 2.0 * radius.0, cd);
         }
     }
-    // Each row's contribution is |cᵢ|·u(xᵢ); the inputs are uncorrelated.
-    let contributions: Vec<f64> = rows.iter().map(|r| r.contribution_n_per_m).collect();
-    let uc = combined_standard_uncertainty(&vec![1.0; rows.len()], &contributions, None);
-    Budget {
-        tension_n_per_m: t0,
-        rows,
-        combined_standard_uncertainty_n_per_m: uc,
-        coverage_factor: COVERAGE_FACTOR,
-        expanded_uncertainty_n_per_m: COVERAGE_FACTOR * uc,
-    }
+    rows
 }
 
 #[cfg(test)]

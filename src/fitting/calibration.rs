@@ -468,37 +468,6 @@ impl Calibration {
         let t: toml::Table = text
             .parse()
             .map_err(|e: toml::de::Error| format!("not valid TOML: {}", e.message()))?;
-        let get_str = |tab: &toml::Table, k: &str| -> std::result::Result<String, String> {
-            tab.get(k)
-                .and_then(|v| v.as_str())
-                .map(str::to_string)
-                .ok_or_else(|| format!("missing text key '{k}'"))
-        };
-        let num = |tab: &toml::Table, k: &str| -> std::result::Result<f64, String> {
-            let v = match tab.get(k) {
-                Some(toml::Value::Float(x)) => *x,
-                Some(toml::Value::Integer(i)) => *i as f64,
-                _ => return Err(format!("missing number '{k}'")),
-            };
-            if v.is_finite() {
-                Ok(v)
-            } else {
-                Err(format!("'{k}' is not a finite number"))
-            }
-        };
-        let positive = |tab: &toml::Table, k: &str| -> std::result::Result<f64, String> {
-            let v = num(tab, k)?;
-            if v > 0.0 {
-                Ok(v)
-            } else {
-                Err(format!("'{k}' must be positive, found {v}"))
-            }
-        };
-        let table = |k: &str| -> std::result::Result<&toml::Table, String> {
-            t.get(k)
-                .and_then(|v| v.as_table())
-                .ok_or_else(|| format!("missing table [{k}]"))
-        };
         let schema = get_str(&t, "schema")?;
         if schema != SCHEMA {
             return Err(format!("schema is '{schema}', expected '{SCHEMA}'"));
@@ -512,83 +481,129 @@ impl Calibration {
                 ));
             }
         }
-        let panel = table("panel")?;
-        let shape = match get_str(panel, "shape")?.as_str() {
-            "circle" => Shape::Circle {
-                radius: crate::base::units::Meters(positive(panel, "diameter_m")? / 2.0),
-            },
-            "rectangle" => Shape::Rectangle {
-                width: crate::base::units::Meters(positive(panel, "width_m")?),
-                height: crate::base::units::Meters(positive(panel, "height_m")?),
-            },
-            other => {
-                return Err(format!(
-                    "panel shape '{other}' is neither circle nor rectangle"
-                ))
-            }
-        };
-        let reference = table("reference")?;
+        let panel = table(&t, "panel")?;
+        let reference = table(&t, "reference")?;
         let tension = positive(reference, "tension_n_per_m")?;
         let tension_u = num(reference, "tension_u_n_per_m")?;
         if tension_u < 0.0 {
             return Err("'tension_u_n_per_m' must not be negative".into());
         }
-        let arr = |k: &str| -> Vec<&toml::Table> {
-            t.get(k)
-                .and_then(|v| v.as_array())
-                .map(|a| a.iter().filter_map(|v| v.as_table()).collect())
-                .unwrap_or_default()
-        };
-        let mut modes = Vec::new();
-        for (i, m) in arr("mode").into_iter().enumerate() {
-            let int = |k: &str| -> std::result::Result<u32, String> {
-                m.get(k)
-                    .and_then(|v| v.as_integer())
-                    .and_then(|v| u32::try_from(v).ok())
-                    .ok_or_else(|| format!("mode entry {} lacks a whole number '{k}'", i + 1))
-            };
-            let (mm, nn) = (int("m")?, int("n")?);
-            if nn == 0 {
-                return Err(format!("mode entry {}: n counts from 1", i + 1));
-            }
-            modes.push(ModeFactor {
-                m: mm,
-                n: nn,
-                factor: positive(m, "factor").map_err(|e| format!("mode ({mm},{nn}): {e}"))?,
-                u_repeat: num(m, "u_repeat").map_err(|e| format!("mode ({mm},{nn}): {e}"))?,
-                u: num(m, "u").map_err(|e| format!("mode ({mm},{nn}): {e}"))?,
-                recordings: int("recordings")? as usize,
-            });
-        }
-        if modes.is_empty() {
-            return Err("no [[mode]] entries".into());
-        }
-        let sources = arr("source")
-            .into_iter()
-            .map(|s| -> std::result::Result<Source, String> {
-                Ok(Source {
-                    file: get_str(s, "file")?,
-                    sha256: get_str(s, "sha256")?,
-                    modes: s
-                        .get("modes")
-                        .and_then(|v| v.as_integer())
-                        .unwrap_or(0)
-                        .max(0) as usize,
-                })
-            })
-            .collect::<std::result::Result<Vec<_>, String>>()?;
         Ok(Calibration {
-            shape,
+            shape: parse_shape(panel)?,
             areal_density_kg_per_m2: positive(panel, "areal_density_kg_per_m2")?,
             reference_tension_n_per_m: tension,
             reference_tension_u_n_per_m: tension_u,
-            modes,
-            sources,
+            modes: parse_modes(&t)?,
+            sources: parse_sources(&t)?,
             created: get_str(&t, "created")?,
             tonus_version: get_str(&t, "tonus_version").unwrap_or_default(),
             label_model: get_str(&t, "label_model").unwrap_or_else(|_| "isotropic".into()),
         })
     }
+}
+
+type Parsed<T> = std::result::Result<T, String>;
+
+fn get_str(tab: &toml::Table, k: &str) -> Parsed<String> {
+    tab.get(k)
+        .and_then(|v| v.as_str())
+        .map(str::to_string)
+        .ok_or_else(|| format!("missing text key '{k}'"))
+}
+
+fn num(tab: &toml::Table, k: &str) -> Parsed<f64> {
+    let v = match tab.get(k) {
+        Some(toml::Value::Float(x)) => *x,
+        Some(toml::Value::Integer(i)) => *i as f64,
+        _ => return Err(format!("missing number '{k}'")),
+    };
+    if v.is_finite() {
+        Ok(v)
+    } else {
+        Err(format!("'{k}' is not a finite number"))
+    }
+}
+
+fn positive(tab: &toml::Table, k: &str) -> Parsed<f64> {
+    let v = num(tab, k)?;
+    if v > 0.0 {
+        Ok(v)
+    } else {
+        Err(format!("'{k}' must be positive, found {v}"))
+    }
+}
+
+fn table<'a>(t: &'a toml::Table, k: &str) -> Parsed<&'a toml::Table> {
+    t.get(k)
+        .and_then(|v| v.as_table())
+        .ok_or_else(|| format!("missing table [{k}]"))
+}
+
+fn tables<'a>(t: &'a toml::Table, k: &str) -> Vec<&'a toml::Table> {
+    t.get(k)
+        .and_then(|v| v.as_array())
+        .map(|a| a.iter().filter_map(|v| v.as_table()).collect())
+        .unwrap_or_default()
+}
+
+fn parse_shape(panel: &toml::Table) -> Parsed<Shape> {
+    match get_str(panel, "shape")?.as_str() {
+        "circle" => Ok(Shape::Circle {
+            radius: crate::base::units::Meters(positive(panel, "diameter_m")? / 2.0),
+        }),
+        "rectangle" => Ok(Shape::Rectangle {
+            width: crate::base::units::Meters(positive(panel, "width_m")?),
+            height: crate::base::units::Meters(positive(panel, "height_m")?),
+        }),
+        other => Err(format!(
+            "panel shape '{other}' is neither circle nor rectangle"
+        )),
+    }
+}
+
+fn parse_modes(t: &toml::Table) -> Parsed<Vec<ModeFactor>> {
+    let mut modes = Vec::new();
+    for (i, m) in tables(t, "mode").into_iter().enumerate() {
+        let int = |k: &str| -> Parsed<u32> {
+            m.get(k)
+                .and_then(|v| v.as_integer())
+                .and_then(|v| u32::try_from(v).ok())
+                .ok_or_else(|| format!("mode entry {} lacks a whole number '{k}'", i + 1))
+        };
+        let (mm, nn) = (int("m")?, int("n")?);
+        if nn == 0 {
+            return Err(format!("mode entry {}: n counts from 1", i + 1));
+        }
+        modes.push(ModeFactor {
+            m: mm,
+            n: nn,
+            factor: positive(m, "factor").map_err(|e| format!("mode ({mm},{nn}): {e}"))?,
+            u_repeat: num(m, "u_repeat").map_err(|e| format!("mode ({mm},{nn}): {e}"))?,
+            u: num(m, "u").map_err(|e| format!("mode ({mm},{nn}): {e}"))?,
+            recordings: int("recordings")? as usize,
+        });
+    }
+    if modes.is_empty() {
+        return Err("no [[mode]] entries".into());
+    }
+    Ok(modes)
+}
+
+fn parse_sources(t: &toml::Table) -> Parsed<Vec<Source>> {
+    tables(t, "source")
+        .into_iter()
+        .map(|s| -> Parsed<Source> {
+            Ok(Source {
+                file: get_str(s, "file")?,
+                sha256: get_str(s, "sha256")?,
+                modes: s
+                    .get("modes")
+                    .and_then(|v| v.as_integer())
+                    .unwrap_or(0)
+                    .max(0) as usize,
+            })
+        })
+        .collect()
 }
 
 #[cfg(test)]

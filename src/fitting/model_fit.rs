@@ -119,7 +119,7 @@ fn stiff_result(
         f.n_used = n_plate;
         f.dof = n_plate.saturating_sub(2);
         f.iterations = pf.iterations;
-        f.stop_reason = "Gauss–Newton converged".into();
+        f.stop_reason = pf.stop_reason.clone();
         f.uncertainty_method = format!(
             "s²(JᵀJ)⁻¹, {} modes, 2 parameters (Type A), with {} cents for the frequency method",
             fit_obs.len(),

@@ -75,130 +75,147 @@ pub fn grade(
     clipped_fraction: f64,
     strong_unexplained: &[(f64, bool)],
 ) -> Quality {
-    let mut g = Grade::Sound;
-    let mut reasons = Vec::new();
-    let mut worse = |to: Grade, why: String, g: &mut Grade| {
-        if to > *g {
-            *g = to;
-        }
-        reasons.push(why);
-    };
     let Some(f) = fit else {
         return Quality {
             grade: Grade::Unfit,
             reasons: vec!["no partial could be matched to a mode of this membrane".into()],
         };
     };
-    match f.n_used {
-        0 => worse(Grade::Unfit, "no mode matched".into(), &mut g),
-        1 => worse(
+    let findings: Vec<(Grade, String)> = [
+        mode_count(f.n_used),
+        residual_size(f.rms_residual_cents),
+        matching.is_some_and(|m| m.is_ambiguous()).then(|| {
+            (
+                Grade::Doubtful,
+                "two labellings of the spectrum fit almost equally well".into(),
+            )
+        }),
+        clipping(clipped_fraction),
+    ]
+    .into_iter()
+    .flatten()
+    .chain(warnings.iter().filter_map(from_warning))
+    .chain(unexplained(strong_unexplained))
+    .chain(outlier_share(modes))
+    .collect();
+    let grade = findings
+        .iter()
+        .fold(Grade::Sound, |g, (to, _)| if *to > g { *to } else { g });
+    Quality {
+        grade,
+        reasons: findings.into_iter().map(|(_, why)| why).collect(),
+    }
+}
+
+/// Few modes leave the model unchecked.
+fn mode_count(n_used: usize) -> Option<(Grade, String)> {
+    match n_used {
+        0 => Some((Grade::Unfit, "no mode matched".into())),
+        1 => Some((
             Grade::Doubtful,
             "one mode only: its label is assumed and the model cannot be checked".into(),
-            &mut g,
-        ),
-        2 => worse(
+        )),
+        2 => Some((
             Grade::Doubtful,
             "two modes only: one degree of freedom to check the model".into(),
-            &mut g,
-        ),
-        3 => worse(Grade::Fair, "three modes only".into(), &mut g),
-        _ => {}
+        )),
+        3 => Some((Grade::Fair, "three modes only".into())),
+        _ => None,
     }
-    if f.rms_residual_cents > DOUBTFUL_RMS_CENTS {
-        worse(
+}
+
+/// A large rms residual says the model does not fit.
+fn residual_size(rms_cents: f64) -> Option<(Grade, String)> {
+    if rms_cents > DOUBTFUL_RMS_CENTS {
+        Some((
             Grade::Doubtful,
-            format!(
-                "the model does not fit: rms residual {:.1} cents (over {DOUBTFUL_RMS_CENTS})",
-                f.rms_residual_cents
-            ),
-            &mut g,
-        );
-    } else if f.rms_residual_cents > FAIR_RMS_CENTS {
-        worse(
+            format!("the model does not fit: rms residual {rms_cents:.1} cents (over {DOUBTFUL_RMS_CENTS})"),
+        ))
+    } else if rms_cents > FAIR_RMS_CENTS {
+        Some((
             Grade::Fair,
-            format!(
-                "rms residual {:.1} cents (over {FAIR_RMS_CENTS})",
-                f.rms_residual_cents
-            ),
-            &mut g,
-        );
+            format!("rms residual {rms_cents:.1} cents (over {FAIR_RMS_CENTS})"),
+        ))
+    } else {
+        None
     }
-    if matching.is_some_and(|m| m.is_ambiguous()) {
-        worse(
-            Grade::Doubtful,
-            "two labellings of the spectrum fit almost equally well".into(),
-            &mut g,
-        );
-    }
+}
+
+/// Clipped samples distort the partials.
+fn clipping(clipped_fraction: f64) -> Option<(Grade, String)> {
     if clipped_fraction > DOUBTFUL_CLIPPED_FRACTION {
-        worse(
+        Some((
             Grade::Doubtful,
             format!("{:.1} % of samples clipped", clipped_fraction * 100.0),
-            &mut g,
-        );
+        ))
     } else if clipped_fraction > 0.0 {
-        worse(
+        Some((
             Grade::Fair,
             format!("{:.3} % of samples clipped", clipped_fraction * 100.0),
-            &mut g,
-        );
+        ))
+    } else {
+        None
     }
-    for w in warnings {
-        match w {
-            Warning::LowSnr { median_snr_db } => worse(
-                Grade::Fair,
-                format!("low SNR: median {median_snr_db:.1} dB"),
-                &mut g,
-            ),
-            Warning::SystematicResidual { detail } => worse(
-                Grade::Fair,
-                format!("systematic residuals: {detail}"),
-                &mut g,
-            ),
-            Warning::NoOnset => worse(Grade::Fair, "no tap onset found".into(), &mut g),
-            Warning::ModelMisfit { detail } => worse(Grade::Doubtful, detail.clone(), &mut g),
-            _ => {}
+}
+
+/// The warnings that lower the grade.
+fn from_warning(w: &Warning) -> Option<(Grade, String)> {
+    match w {
+        Warning::LowSnr { median_snr_db } => Some((
+            Grade::Fair,
+            format!("low SNR: median {median_snr_db:.1} dB"),
+        )),
+        Warning::SystematicResidual { detail } => {
+            Some((Grade::Fair, format!("systematic residuals: {detail}")))
         }
+        Warning::NoOnset => Some((Grade::Fair, "no tap onset found".into())),
+        Warning::ModelMisfit { detail } => Some((Grade::Doubtful, detail.clone())),
+        _ => None,
     }
-    if !strong_unexplained.is_empty() {
-        let list = strong_unexplained
-            .iter()
-            .map(|(f, _)| format!("{f:.1} Hz"))
-            .collect::<Vec<_>>()
-            .join(", ");
-        let strongest = strong_unexplained.iter().any(|&(_, top)| top);
-        if strongest || strong_unexplained.len() >= 2 {
-            worse(
-                Grade::Doubtful,
-                format!(
-                    "{} of the {STRONG_PARTIALS} strongest partials ({list}){} {} no mode: the model or the labelling is likely wrong",
-                    strong_unexplained.len(),
-                    if strongest { ", the strongest among them," } else { "" },
-                    if strong_unexplained.len() == 1 { "matches" } else { "match" }
-                ),
-                &mut g,
-            );
-        } else {
-            worse(
-                Grade::Fair,
-                format!("a strong partial at {list} matches no mode (a rattle, a stand resonance, or a mode the model lacks)"),
-                &mut g,
-            );
-        }
+}
+
+/// Strong partials no mode explains.
+fn unexplained(strong_unexplained: &[(f64, bool)]) -> Option<(Grade, String)> {
+    if strong_unexplained.is_empty() {
+        return None;
     }
+    let list = strong_unexplained
+        .iter()
+        .map(|(f, _)| format!("{f:.1} Hz"))
+        .collect::<Vec<_>>()
+        .join(", ");
+    let strongest = strong_unexplained.iter().any(|&(_, top)| top);
+    if strongest || strong_unexplained.len() >= 2 {
+        Some((
+            Grade::Doubtful,
+            format!(
+                "{} of the {STRONG_PARTIALS} strongest partials ({list}){} {} no mode: the model or the labelling is likely wrong",
+                strong_unexplained.len(),
+                if strongest { ", the strongest among them," } else { "" },
+                if strong_unexplained.len() == 1 { "matches" } else { "match" }
+            ),
+        ))
+    } else {
+        Some((
+            Grade::Fair,
+            format!("a strong partial at {list} matches no mode (a rattle, a stand resonance, or a mode the model lacks)"),
+        ))
+    }
+}
+
+/// More than a fifth of the fitted partials left out as outliers.
+fn outlier_share(modes: &[ModeRow]) -> Option<(Grade, String)> {
     let outliers = modes.iter().filter(|m| m.outlier).count();
     let fitted = modes.iter().filter(|m| !m.crowded).count();
-    if outliers * 5 > fitted.max(1) {
-        worse(
+    (outliers * 5 > fitted.max(1)).then(|| {
+        (
             Grade::Fair,
             format!(
                 "{outliers} of {} matched partials left out as outliers",
                 modes.len()
             ),
-            &mut g,
-        );
-    }
-    Quality { grade: g, reasons }
+        )
+    })
 }
 
 /// A trend of the residuals with frequency, if it is both significant

@@ -400,8 +400,7 @@ pub fn square_evenness(pairs: &[PairInput]) -> Option<Evenness> {
             ));
             continue;
         }
-        let (m2, n2) = ((p.m * p.m) as f64, (p.n * p.n) as f64);
-        let k = (m2 + n2) / (m2 - n2).abs();
+        let k = 1.0 / square_split_coefficient(p.m, p.n);
         let (q, u) = split_ratio(lo, ulo, hi, uhi, r, k);
         used.push((format!("({},{})/({},{})", p.m, p.n, p.n, p.m), q, u));
     }

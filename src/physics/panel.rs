@@ -141,6 +141,27 @@ impl PanelSpec {
     }
 }
 
+/// The kind of a panel's shape, as named in flags, panel files and
+/// specifications.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ShapeKind {
+    Rectangle,
+    Circle,
+}
+
+impl ShapeKind {
+    /// The one reader of shape names: `rect`, `rectangle`, `rectangular`
+    /// or `circle`, `round`, `circular`, in any case; `None` for anything
+    /// else.
+    pub fn from_name(name: &str) -> Option<ShapeKind> {
+        match name.to_lowercase().as_str() {
+            "rect" | "rectangle" | "rectangular" => Some(ShapeKind::Rectangle),
+            "circle" | "round" | "circular" => Some(ShapeKind::Circle),
+            _ => None,
+        }
+    }
+}
+
 /// A parsed, checked panel.
 #[derive(Debug, Clone, Serialize)]
 pub struct Panel {
@@ -188,8 +209,8 @@ impl Panel {
                 "rect".into()
             }
         });
-        let shape = match shape_text.to_lowercase().as_str() {
-            "rect" | "rectangle" | "rectangular" => {
+        let shape = match ShapeKind::from_name(&shape_text) {
+            Some(ShapeKind::Rectangle) => {
                 let w = spec.width.as_deref().ok_or_else(|| {
                     TonusError::Panel("a rectangle needs --width (e.g. --width 400mm)".into())
                 })?;
@@ -201,7 +222,7 @@ impl Panel {
                     height: units::parse_length("--height", h)?,
                 }
             }
-            "circle" | "round" | "circular" => {
+            Some(ShapeKind::Circle) => {
                 let radius = match (spec.diameter.as_deref(), spec.radius.as_deref()) {
                     (Some(d), None) => Meters(units::parse_length("--diameter", d)?.0 / 2.0),
                     (None, Some(r)) => units::parse_length("--radius", r)?,
@@ -218,10 +239,10 @@ impl Panel {
                 };
                 Shape::Circle { radius }
             }
-            other => {
+            None => {
                 return Err(TonusError::BadQuantity {
                     key: "--shape".into(),
-                    value: other.into(),
+                    value: shape_text.to_lowercase(),
                     expected: "rect or circle".into(),
                     example: "rect".into(),
                 })

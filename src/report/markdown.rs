@@ -15,6 +15,19 @@ pub fn fit_report(
     picture: Option<&str>,
 ) -> String {
     let mut s = String::new();
+    summary(&mut s, file, m, unit);
+    axes_and_budget(&mut s, m, unit);
+    if let Some(p) = picture {
+        let _ = writeln!(s, "![spectrum with predicted modes]({p})\n");
+    }
+    mode_tables(&mut s, m);
+    taps(&mut s, m);
+    closing(&mut s, m);
+    s
+}
+
+/// The title and the summary table, with the diagnosis if any.
+fn summary(s: &mut String, file: &Path, m: &Measurement, unit: TensionUnit) {
     let name = file
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
@@ -106,6 +119,10 @@ pub fn fit_report(
     if let Some(d) = &m.diagnosis {
         let _ = writeln!(s, "**Diagnosis**: {}\n", d.sentence());
     }
+}
+
+/// The tension along the two axes (biaxial) and the GUM budget.
+fn axes_and_budget(s: &mut String, m: &Measurement, unit: TensionUnit) {
     if let Some(b) = &m.biaxial {
         let k = unit.newtons_per_meter();
         let _ = writeln!(s, "## Tension along the two axes\n");
@@ -150,9 +167,10 @@ pub fn fit_report(
             b.coverage_factor
         );
     }
-    if let Some(p) = picture {
-        let _ = writeln!(s, "![spectrum with predicted modes]({p})\n");
-    }
+}
+
+/// The matched and missing modes, the unexplained partials and the hum.
+fn mode_tables(s: &mut String, m: &Measurement) {
     if !m.modes.is_empty() {
         let _ = writeln!(s, "## Matched modes\n");
         let _ = writeln!(s, "| mode | predicted Hz | measured Hz | u Hz | CRLB Hz | residual cents | level dB | SNR dB | decay dB/s | T60 s | note |\n|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|");
@@ -242,6 +260,10 @@ pub fn fit_report(
         }
         let _ = writeln!(s);
     }
+}
+
+/// The taps of a file of several taps.
+fn taps(s: &mut String, m: &Measurement) {
     if let Some(t) = &m.taps {
         let _ = writeln!(
             s,
@@ -269,6 +291,10 @@ pub fn fit_report(
             );
         }
     }
+}
+
+/// Warnings, method and the caution.
+fn closing(s: &mut String, m: &Measurement) {
     let _ = writeln!(s, "## Warnings\n");
     if m.warnings.is_empty() {
         let _ = writeln!(s, "None.\n");
@@ -293,5 +319,4 @@ pub fn fit_report(
         "The ideal model leaves out bending stiffness, air loading and uneven tension; on light films in air the ideal-membrane tension can be far too low. The uncertainty above is the fit's statistical part only: the areal density and dimensions add their own.\n"
     );
     let _ = writeln!(s, "## Caution\n\n{CAUTION}");
-    s
 }

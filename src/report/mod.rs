@@ -6,6 +6,7 @@
 //! into place, so an interrupted run never leaves a half-written output.
 
 pub mod batch;
+pub mod plot;
 pub mod png;
 
 use crate::base::files::write_atomic;
@@ -24,7 +25,7 @@ use crate::fitting::measurement::Measurement;
 
 /// The picture's data, taken from a measurement.
 pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::SpectrumPlot {
-    let spec = &m.analysis.spectrum;
+    let spectrum = &m.analysis.spectrum;
     let top_partial = m
         .analysis
         .partials
@@ -33,11 +34,11 @@ pub fn spectrum_plot(file: &Path, m: &Measurement, unit: TensionUnit) -> png::Sp
         .fold(0.0, f64::max);
     let max_f = (top_partial * 1.1)
         .max(200.0)
-        .min(spec.bin_hz * (spec.power.len() - 1) as f64);
-    let n = ((max_f / spec.bin_hz) as usize + 1).min(spec.power.len());
-    let freqs_hz: Vec<f64> = (0..n).map(|k| k as f64 * spec.bin_hz).collect();
-    let level_db: Vec<f64> = (0..n).map(|k| spec.level_db(k)).collect();
-    let floor_db: Vec<f64> = (0..n).map(|k| spec.floor_db(k)).collect();
+        .min(spectrum.bin_hz * (spectrum.power.len() - 1) as f64);
+    let n = ((max_f / spectrum.bin_hz) as usize + 1).min(spectrum.power.len());
+    let freqs_hz: Vec<f64> = (0..n).map(|k| k as f64 * spectrum.bin_hz).collect();
+    let level_db: Vec<f64> = (0..n).map(|k| spectrum.level_db(k)).collect();
+    let floor_db: Vec<f64> = (0..n).map(|k| spectrum.floor_db(k)).collect();
     let matched: Vec<usize> = m
         .matching
         .as_ref()

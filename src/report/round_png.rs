@@ -8,14 +8,12 @@
 //! picture (the head's 0°), as the round's lug angles are given; bar
 //! lengths in pixels per percent fixed by the largest |d| + 2u and the
 //! tolerance, printed on the picture. Drawn with plotters into an RGB
-//! buffer and encoded with the `png` crate (DejaVu Sans from
-//! `assets/fonts/`).
+//! buffer and encoded by [`crate::report::plot`] (its bundled font).
 
 use crate::acceptance::lug_advice::{Advice, LugState};
 use crate::fitting::round_taps::RoundResult;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
-use std::sync::OnceLock;
 
 /// Picture size, pixels (square).
 pub const SIZE_PX: u32 = 900;
@@ -23,10 +21,6 @@ pub const SIZE_PX: u32 = 900;
 const RIM_PX: f64 = 225.0;
 /// Longest bar, pixels (the largest |d| + 2u, or the tolerance).
 const LONGEST_BAR_PX: f64 = 85.0;
-/// Font family registered for the picture.
-const FONT_FAMILY: &str = "tonus-round-sans";
-static FONT_BYTES: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
-
 const INK: RGBColor = RGBColor(38, 42, 48);
 const SOFT: RGBColor = RGBColor(150, 154, 160);
 const HEAD: RGBColor = RGBColor(246, 243, 236);
@@ -35,24 +29,7 @@ const BEYOND: RGBColor = RGBColor(186, 48, 40);
 const UNSURE: RGBColor = RGBColor(206, 140, 20);
 const AXIS: RGBColor = RGBColor(40, 128, 96);
 
-fn ensure_font() -> Result<(), String> {
-    static OK: OnceLock<bool> = OnceLock::new();
-    if *OK.get_or_init(|| {
-        plotters::style::register_font(FONT_FAMILY, FontStyle::Normal, FONT_BYTES).is_ok()
-    }) {
-        Ok(())
-    } else {
-        Err("the bundled font assets/fonts/DejaVuSans.ttf could not be loaded".into())
-    }
-}
-
-fn font(px: f64) -> FontDesc<'static> {
-    (FONT_FAMILY, px).into_font()
-}
-
-fn err<E: std::fmt::Display>(e: E) -> String {
-    format!("drawing the round picture failed: {e}")
-}
+use crate::report::plot::{draw_err as err, font};
 
 // Size: one picture drawn top to bottom, layer over layer.
 /// Renders the picture and returns it as PNG bytes.
@@ -65,12 +42,8 @@ pub fn render(
     a: &Advice,
     lug_angles: &[f64],
 ) -> Result<Vec<u8>, String> {
-    ensure_font()?;
     let n = SIZE_PX as usize;
-    let mut buf = vec![0u8; n * n * 3];
-    {
-        let root = BitMapBackend::with_buffer(&mut buf, (SIZE_PX, SIZE_PX)).into_drawing_area();
-        root.fill(&WHITE).map_err(err)?;
+    crate::report::plot::picture(SIZE_PX, SIZE_PX, |root| {
         let c = (SIZE_PX as f64 / 2.0, SIZE_PX as f64 / 2.0 + 5.0);
         let at = |rad: f64, deg: f64| -> (i32, i32) {
             let t = deg.to_radians();
@@ -262,16 +235,6 @@ pub fn render(
                 .pos(Pos::new(HPos::Center, VPos::Center)),
         ))
         .map_err(err)?;
-        root.present().map_err(err)?;
-    }
-    let mut out = Vec::new();
-    {
-        let mut enc = ::png::Encoder::new(&mut out, SIZE_PX, SIZE_PX);
-        enc.set_color(::png::ColorType::Rgb);
-        enc.set_depth(::png::BitDepth::Eight);
-        let mut w = enc.write_header().map_err(err)?;
-        w.write_image_data(&buf).map_err(err)?;
-        w.finish().map_err(err)?;
-    }
-    Ok(out)
+        Ok(())
+    })
 }

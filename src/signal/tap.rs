@@ -71,10 +71,103 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
     let diff: Vec<f64> = std::iter::once(0.0)
         .chain(samples.windows(2).map(|w| w[1] - w[0]))
         .collect();
-    // Frame energies from sums over hop-long blocks (every frame is a
-    // whole number of hops): each sample is squared once, not once per
-    // overlapping frame, and the sums stay exact sums of squares.
-    let frame_db = |sig: &[f64], len: usize| -> Vec<f64> {
+    let frames = Frames { n, hop, n_frames };
+    // The decay envelope uses the signal itself over 20 ms, a whole period
+    // of 50 Hz hum, so that hum reads as a steady background.
+    let envelope_db = frames.db(samples, 5 * frame);
+    // The quietest tenth of the file is taken as background: the pre-roll
+    // and the end of the decay.
+    let (background_db, peak_db) = quiet_and_peak(&envelope_db);
+    let lookback = ((0.02 * sample_rate_hz) as usize / hop).max(2);
+    // The first difference finds the onset under hum. A soft tap (a felt
+    // mallet, a 2 ms pulse) has little energy high up, where the
+    // difference lifts broadband noise: when the difference shows no
+    // onset, the signal's own frame energy is searched the same way.
+    let diff_energy = frames.db(&diff, frame);
+    let mut found =
+        first_onset(&diff_energy, quiet_and_peak(&diff_energy).0, lookback).map(|j| (j, true));
+    let mut energy_db = diff_energy;
+    if found.is_none() {
+        let plain = frames.db(samples, frame);
+        found = first_onset(&plain, quiet_and_peak(&plain).0, lookback).map(|j| (j, false));
+        if found.is_some() {
+            energy_db = plain;
+        }
+    }
+    let (background_onset_db, _) = quiet_and_peak(&energy_db);
+    let Some((of, on_diff)) = found else {
+        // A steady sound (or noise): analyse everything, capped.
+        let end = n.min((MAX_SPAN_S * sample_rate_hz) as usize);
+        return TapSpan {
+            onset_sample: 0,
+            end_sample: end,
+            onset_s: 0.0,
+            span_s: end as f64 / sample_rate_hz,
+            peak_db,
+            background_db,
+            further_taps_s: vec![],
+            onset_found: false,
+        };
+    };
+    let onset_signal: &[f64] = if on_diff { &diff } else { samples };
+    let onset_sample = refine_onset(onset_signal, of * hop, frame);
+
+    let retap_back = ((RETAP_LOOKBACK_S * sample_rate_hz) as usize / hop).max(2);
+    let further = further_taps(
+        &energy_db,
+        of + retap_back,
+        retap_back,
+        background_onset_db + ONSET_ABOVE_FLOOR_DB,
+        |j| refine_onset(onset_signal, j * hop, frame),
+    );
+    let peak_frame = (of..(of + 3 * lookback).min(n_frames))
+        .max_by(|&a, &b| envelope_db[a].total_cmp(&envelope_db[b]))
+        .unwrap_or(of);
+    let limit_sample = further
+        .first()
+        .map(|&s| s.saturating_sub(hop))
+        .unwrap_or(n)
+        .min(onset_sample + (MAX_SPAN_S * sample_rate_hz) as usize)
+        .min(n);
+    let end_sample = span_end(
+        &envelope_db,
+        &frames,
+        frame,
+        peak_frame,
+        background_db + SPAN_END_ABOVE_FLOOR_DB,
+        limit_sample,
+    );
+    let end_sample = (onset_sample
+        + ((end_sample.saturating_sub(onset_sample)) as f64 * SPAN_EXTENSION) as usize)
+        .min(limit_sample);
+    let min_end = (onset_sample + (MIN_SPAN_S * sample_rate_hz) as usize).min(limit_sample);
+    let end_sample = end_sample.max(min_end).min(n);
+    TapSpan {
+        onset_sample,
+        end_sample,
+        onset_s: onset_sample as f64 / sample_rate_hz,
+        span_s: (end_sample - onset_sample) as f64 / sample_rate_hz,
+        peak_db,
+        background_db,
+        further_taps_s: further.iter().map(|&s| s as f64 / sample_rate_hz).collect(),
+        onset_found: true,
+    }
+}
+
+/// The frame grid of a recording: `n` samples, frames every `hop`.
+struct Frames {
+    n: usize,
+    hop: usize,
+    n_frames: usize,
+}
+
+impl Frames {
+    /// Energy in dB of each frame of `len` samples of `sig`. The energies
+    /// come from sums over hop-long blocks (every frame is a whole number
+    /// of hops): each sample is squared once, not once per overlapping
+    /// frame, and the sums stay exact sums of squares.
+    fn db(&self, sig: &[f64], len: usize) -> Vec<f64> {
+        let Frames { n, hop, n_frames } = *self;
         let per = if hop > 0 && len.is_multiple_of(hop) {
             len / hop
         } else {
@@ -104,89 +197,59 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
                 10.0 * (e + 1e-20).log10()
             })
             .collect()
-    };
-    // The decay envelope uses the signal itself over 20 ms, a whole period
-    // of 50 Hz hum, so that hum reads as a steady background.
-    let envelope_db = frame_db(samples, 5 * frame);
-    let tenth = |v: &[f64]| {
-        let mut sorted = v.to_vec();
-        sorted.sort_by(f64::total_cmp);
-        (
-            sorted[sorted.len() / 10],
-            *sorted.last().unwrap_or(&sorted[0]),
-        )
-    };
-    // The quietest tenth of the file is taken as background: the pre-roll
-    // and the end of the decay.
-    let (background_db, peak_db) = tenth(&envelope_db);
-    let lookback = ((0.02 * sample_rate_hz) as usize / hop).max(2);
-    // The first difference finds the onset under hum. A soft tap (a felt
-    // mallet, a 2 ms pulse) has little energy high up, where the
-    // difference lifts broadband noise: when the difference shows no
-    // onset, the signal's own frame energy is searched the same way.
-    let diff_energy = frame_db(&diff, frame);
-    let mut found = first_onset(&diff_energy, tenth(&diff_energy).0, lookback).map(|j| (j, true));
-    let mut energy_db = diff_energy;
-    if found.is_none() {
-        let plain = frame_db(samples, frame);
-        found = first_onset(&plain, tenth(&plain).0, lookback).map(|j| (j, false));
-        if found.is_some() {
-            energy_db = plain;
-        }
     }
-    let (background_onset_db, _) = tenth(&energy_db);
-    let Some((of, on_diff)) = found else {
-        // A steady sound (or noise): analyse everything, capped.
-        let end = n.min((MAX_SPAN_S * sample_rate_hz) as usize);
-        return TapSpan {
-            onset_sample: 0,
-            end_sample: end,
-            onset_s: 0.0,
-            span_s: end as f64 / sample_rate_hz,
-            peak_db,
-            background_db,
-            further_taps_s: vec![],
-            onset_found: false,
-        };
-    };
-    let onset_signal: &[f64] = if on_diff { &diff } else { samples };
-    let onset_sample = refine_onset(onset_signal, of * hop, frame);
+}
 
-    // Further taps: a frame that tops the envelope of the preceding
-    // look-back window by RETAP_EXCESS_DB.
-    let retap_back = ((RETAP_LOOKBACK_S * sample_rate_hz) as usize / hop).max(2);
+/// The level of the quietest tenth of the frames, and the loudest.
+fn quiet_and_peak(v: &[f64]) -> (f64, f64) {
+    let mut sorted = v.to_vec();
+    sorted.sort_by(f64::total_cmp);
+    (
+        sorted[sorted.len() / 10],
+        *sorted.last().unwrap_or(&sorted[0]),
+    )
+}
+
+/// Further taps: from frame `from` on, a frame that tops the envelope of
+/// the preceding `back` frames by [`RETAP_EXCESS_DB`] and stands above
+/// `floor_db`; `onset` places each one to the sample.
+fn further_taps(
+    energy_db: &[f64],
+    from: usize,
+    back: usize,
+    floor_db: f64,
+    onset: impl Fn(usize) -> usize,
+) -> Vec<usize> {
     let mut further = Vec::new();
-    let mut j = of + retap_back;
-    while j < n_frames {
-        let prev_max = energy_db[j - retap_back..j]
+    let mut j = from;
+    while j < energy_db.len() {
+        let prev_max = energy_db[j - back..j]
             .iter()
             .copied()
             .fold(f64::NEG_INFINITY, f64::max);
-        if energy_db[j] > prev_max + RETAP_EXCESS_DB
-            && energy_db[j] > background_onset_db + ONSET_ABOVE_FLOOR_DB
-        {
-            further.push(refine_onset(onset_signal, j * hop, frame));
-            j += retap_back;
+        if energy_db[j] > prev_max + RETAP_EXCESS_DB && energy_db[j] > floor_db {
+            further.push(onset(j));
+            j += back;
         } else {
             j += 1;
         }
     }
+    further
+}
 
-    // The span ends when the decay reaches the background, at the next tap,
-    // or at MAX_SPAN_S.
-    let peak_frame = (of..(of + 3 * lookback).min(n_frames))
-        .max_by(|&a, &b| envelope_db[a].total_cmp(&envelope_db[b]))
-        .unwrap_or(of);
-    let limit_sample = further
-        .first()
-        .map(|&s| s.saturating_sub(hop))
-        .unwrap_or(n)
-        .min(onset_sample + (MAX_SPAN_S * sample_rate_hz) as usize)
-        .min(n);
-    let threshold = background_db + SPAN_END_ABOVE_FLOOR_DB;
-    // Smooth over a few frames so a beat minimum does not end the span.
+/// Where the decay falls below `threshold_db` (smoothed over a few frames
+/// so a beat minimum does not end the span), from the peak frame on; at
+/// most `limit_sample` (the next tap, or the longest span).
+fn span_end(
+    envelope_db: &[f64],
+    frames: &Frames,
+    frame: usize,
+    peak_frame: usize,
+    threshold_db: f64,
+    limit_sample: usize,
+) -> usize {
+    let (hop, n_frames) = (frames.hop, frames.n_frames);
     let smooth = 5usize;
-    let mut end_sample = limit_sample;
     for jj in peak_frame..n_frames {
         if jj * hop >= limit_sample {
             break;
@@ -196,26 +259,11 @@ pub fn find_tap(samples: &[f64], sample_rate_hz: f64) -> TapSpan {
             .iter()
             .copied()
             .fold(f64::NEG_INFINITY, f64::max);
-        if m < threshold {
-            end_sample = (jj * hop + frame).min(limit_sample);
-            break;
+        if m < threshold_db {
+            return (jj * hop + frame).min(limit_sample);
         }
     }
-    let end_sample = (onset_sample
-        + ((end_sample.saturating_sub(onset_sample)) as f64 * SPAN_EXTENSION) as usize)
-        .min(limit_sample);
-    let min_end = (onset_sample + (MIN_SPAN_S * sample_rate_hz) as usize).min(limit_sample);
-    let end_sample = end_sample.max(min_end).min(n);
-    TapSpan {
-        onset_sample,
-        end_sample,
-        onset_s: onset_sample as f64 / sample_rate_hz,
-        span_s: (end_sample - onset_sample) as f64 / sample_rate_hz,
-        peak_db,
-        background_db,
-        further_taps_s: further.iter().map(|&s| s as f64 / sample_rate_hz).collect(),
-        onset_found: true,
-    }
+    limit_sample
 }
 
 /// The first frame whose energy (dB) rises [`ONSET_RISE_DB`] over the

@@ -3,7 +3,7 @@
 //! settled without the refinement.
 
 use super::record::{csv_row, frequency_method};
-use crate::acceptance::decision::{Decision, DecisionInput};
+use crate::acceptance::decision::{Decision, DecisionInput, Verdict};
 use crate::acceptance::history::{RecordingContext, Row};
 use crate::acceptance::spec::Spec;
 use crate::app::options::Refinement;
@@ -157,6 +157,7 @@ pub(super) fn decide_one(
     counters: &Counters,
 ) -> Item {
     let t0 = Instant::now();
+    // One clock read stamps the CSV row and the history row alike.
     let time = UtcTime::now();
     let bytes = std::fs::read(file);
     let sha = bytes.as_ref().map(|b| sha256_hex(b)).unwrap_or_default();
@@ -168,105 +169,31 @@ pub(super) fn decide_one(
         add_elapsed(&counters.decode_ns, t1);
         let rec = rec?;
         let t2 = Instant::now();
-        let panel = spec.panel();
-        let measure = |refine: bool| {
-            let fit_opts = pipeline::FitOptions {
-                model: spec.model.fit_model(),
-                analysis: crate::signal::partials::AnalysisConfig {
-                    refine,
-                    ..Default::default()
-                },
-                calibration: spec.calibration.clone(),
-                aspect_search: true,
-            };
-            PLANNER.with(|p| pipeline::measure_with(&rec, &panel, &fit_opts, &mut p.borrow_mut()))
-        };
-        let mut refined = opts.refinement == Refinement::Always;
-        let mut m = measure(refined);
-        if opts.refinement == Refinement::NearLimits {
-            if let Ok(first) = &m {
-                if !decision_is_settled(spec, first) {
-                    refined = true;
-                    m = measure(true);
-                }
-            }
-        }
+        let (m, refined) = measure(spec, &rec, opts.refinement);
         add_elapsed(&counters.measure_ns, t2);
         let m = m?;
         let t3 = Instant::now();
         let verdict = spec.decide(&m);
-        let mut record = report::json::fit_record(file, &m, TensionUnit::NewtonPerMeter);
-        if let serde_json::Value::Object(o) = &mut record {
-            o.insert(
-                "decision".into(),
-                serde_json::to_value(&verdict).unwrap_or_default(),
-            );
-            o.insert(
-                "spec".into(),
-                serde_json::json!({
-                    "name": spec.name,
-                    "version": spec.version,
-                    "sha256": spec.hash,
-                    "model": spec.model.name(),
-                    "calibration": spec.calibration.as_ref().map(|c| serde_json::json!({
-                        "file": c.path.display().to_string(),
-                        "sha256": spec.calibration_sha256,
-                    })),
-                }),
-            );
-            o.insert(
-                "recording_sha256".into(),
-                serde_json::Value::String(sha.clone()),
-            );
-            o.insert(
-                "frequency_method".into(),
-                serde_json::Value::String(frequency_method(refined).into()),
-            );
-        }
+        let record = json_record(spec, file, &m, &verdict, &sha, refined);
         let ctx = RecordingContext {
             recording_sha256: sha.clone(),
             recording_path: file.display().to_string(),
             station: opts.station.clone(),
             operator: opts.operator.clone(),
         };
-        let row = Row::from_decision(&ctx, spec, &m, &verdict, record.to_string());
-        let input = spec.decision_input(&m);
-        let entry = BatchEntry {
-            refined,
-            file: file.display().to_string(),
-            decision: verdict.decision.name().to_string(),
-            tension_n_per_m: input.tension.map(|t| t.value),
-            tension_u_n_per_m: input.tension.map(|t| t.standard_uncertainty),
-            expanded_u_n_per_m: verdict.expanded_uncertainty_n_per_m,
-            margin_n_per_m: verdict.margin.map(|mg| mg.n_per_m),
-            nearest_limit: verdict
-                .margin
-                .map(|mg| format!("{:?}", mg.nearest_limit).to_lowercase()),
-            anisotropy_percent: input.anisotropy_percent.map(|a| a.value),
-            anisotropy_u_percent: input.anisotropy_percent.map(|a| a.standard_uncertainty),
-            unevenness_percent: input.unevenness_percent.map(|e| e.value),
-            unevenness_u_percent: input.unevenness_percent.map(|e| e.standard_uncertainty),
-            anisotropy_decision: verdict.anisotropy.as_ref().map(|j| j.decision.to_string()),
-            unevenness_decision: verdict.unevenness.as_ref().map(|j| j.decision.to_string()),
-            grade: Some(m.quality.grade.name().to_string()),
-            reason: match &verdict.decision {
-                Decision::NotMeasured { reason } => Some(reason.clone()),
-                _ => None,
-            },
-        };
+        let mut row = Row::from_decision(&ctx, spec, &m, &verdict, record.to_string());
+        row.time = time;
+        let entry = batch_entry(spec, file, &m, &verdict, refined);
         add_elapsed(&counters.record_ns, t3);
         Ok((row, record, entry))
     })();
-    let item = match result {
-        Ok((row, json, entry)) => {
-            let csv_row = csv_row(&sha, time, Some(&row), &json, None);
-            Item {
-                row: Some(row),
-                csv_row,
-                json_line: json.to_string(),
-                entry,
-            }
-        }
+    match result {
+        Ok((row, json, entry)) => Item {
+            csv_row: csv_row(&sha, time, Some(&row), &json, None),
+            row: Some(row),
+            json_line: json.to_string(),
+            entry,
+        },
         Err(e) => {
             let json =
                 serde_json::json!({"file": file.display().to_string(), "error": e.to_string()});
@@ -283,6 +210,112 @@ pub(super) fn decide_one(
                 entry,
             }
         }
+    }
+}
+
+/// Measures a recording with the specification's panel and model, on its
+/// FFT peaks or refined as `refinement` says; also returns whether the
+/// result is refined.
+fn measure(
+    spec: &Spec,
+    rec: &recording::Recording,
+    refinement: Refinement,
+) -> (Result<pipeline::Measurement>, bool) {
+    let panel = spec.panel();
+    let measure = |refine: bool| {
+        let fit_opts = pipeline::FitOptions {
+            model: spec.model.fit_model(),
+            analysis: crate::signal::partials::AnalysisConfig {
+                refine,
+                ..Default::default()
+            },
+            calibration: spec.calibration.clone(),
+            aspect_search: true,
+        };
+        PLANNER.with(|p| pipeline::measure_with(rec, &panel, &fit_opts, &mut p.borrow_mut()))
     };
-    item
+    let refined = refinement == Refinement::Always;
+    let m = measure(refined);
+    match &m {
+        Ok(first) if refinement == Refinement::NearLimits && !decision_is_settled(spec, first) => {
+            (measure(true), true)
+        }
+        _ => (m, refined),
+    }
+}
+
+/// The JSON record of a decided recording: the fit record with the
+/// decision, the specification, the recording's SHA-256 and the frequency
+/// method.
+fn json_record(
+    spec: &Spec,
+    file: &Path,
+    m: &pipeline::Measurement,
+    verdict: &Verdict,
+    sha: &str,
+    refined: bool,
+) -> serde_json::Value {
+    let mut record = report::json::fit_record(file, m, TensionUnit::NewtonPerMeter);
+    if let serde_json::Value::Object(o) = &mut record {
+        o.insert(
+            "decision".into(),
+            serde_json::to_value(verdict).unwrap_or_default(),
+        );
+        o.insert(
+            "spec".into(),
+            serde_json::json!({
+                "name": spec.name,
+                "version": spec.version,
+                "sha256": spec.hash,
+                "model": spec.model.name(),
+                "calibration": spec.calibration.as_ref().map(|c| serde_json::json!({
+                    "file": c.path.display().to_string(),
+                    "sha256": spec.calibration_sha256,
+                })),
+            }),
+        );
+        o.insert(
+            "recording_sha256".into(),
+            serde_json::Value::String(sha.to_string()),
+        );
+        o.insert(
+            "frequency_method".into(),
+            serde_json::Value::String(frequency_method(refined).into()),
+        );
+    }
+    record
+}
+
+/// The batch report's entry of a decided recording.
+fn batch_entry(
+    spec: &Spec,
+    file: &Path,
+    m: &pipeline::Measurement,
+    verdict: &Verdict,
+    refined: bool,
+) -> BatchEntry {
+    let input = spec.decision_input(m);
+    BatchEntry {
+        refined,
+        file: file.display().to_string(),
+        decision: verdict.decision.name().to_string(),
+        tension_n_per_m: input.tension.map(|t| t.value),
+        tension_u_n_per_m: input.tension.map(|t| t.standard_uncertainty),
+        expanded_u_n_per_m: verdict.expanded_uncertainty_n_per_m,
+        margin_n_per_m: verdict.margin.map(|mg| mg.n_per_m),
+        nearest_limit: verdict
+            .margin
+            .map(|mg| format!("{:?}", mg.nearest_limit).to_lowercase()),
+        anisotropy_percent: input.anisotropy_percent.map(|a| a.value),
+        anisotropy_u_percent: input.anisotropy_percent.map(|a| a.standard_uncertainty),
+        unevenness_percent: input.unevenness_percent.map(|e| e.value),
+        unevenness_u_percent: input.unevenness_percent.map(|e| e.standard_uncertainty),
+        anisotropy_decision: verdict.anisotropy.as_ref().map(|j| j.decision.to_string()),
+        unevenness_decision: verdict.unevenness.as_ref().map(|j| j.decision.to_string()),
+        grade: Some(m.quality.grade.name().to_string()),
+        reason: match &verdict.decision {
+            Decision::NotMeasured { reason } => Some(reason.clone()),
+            _ => None,
+        },
+    }
 }
