@@ -1035,6 +1035,7 @@ fn help_names_each_default_once() {
         "inspect",
         "history",
         "demo",
+        "round",
     ];
     let mut defaults = 0;
     for c in commands {

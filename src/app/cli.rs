@@ -459,15 +459,14 @@ pub struct RoundArgs {
     #[arg(long)]
     pub lugs: usize,
     /// Angle of lug 1 in degrees, counter-clockwise from the head's 0°
-    /// mark, seen from above [default: 0].
+    /// mark, seen from above.
     #[arg(long, default_value_t = 0.0, allow_hyphen_values = true)]
     pub first_lug: f64,
-    /// Which way the lugs are numbered, seen from above: cw or ccw
-    /// [default: cw].
+    /// Which way the lugs are numbered, seen from above: cw or ccw.
     #[arg(long, default_value = "cw")]
     pub direction: String,
-    /// Largest deviation of a lug from the mean that is still even, e.g.
-    /// 1% [default: 1%].
+    /// Largest deviation of a lug from the mean that is still even, as a
+    /// percentage of the mean.
     #[arg(long, default_value = "1%")]
     pub tolerance: String,
     /// The maker's tension rating for the head (and hoop), e.g. 4000N/m:
@@ -486,10 +485,10 @@ pub struct RoundArgs {
     /// Raw PCM on standard input: sample rate in Hz (with --pcm-format).
     #[arg(long)]
     pub pcm_rate: Option<u32>,
-    /// Raw PCM: interleaved channels (mixed to one) [default: 1].
+    /// Raw PCM: interleaved channels (mixed to one).
     #[arg(long, default_value_t = 1)]
     pub pcm_channels: u16,
-    /// Raw PCM: sample format s16, s24, s32 or f32, little-endian [default: s16].
+    /// Raw PCM: sample format s16, s24, s32 or f32, little-endian.
     #[arg(long, default_value = "s16")]
     pub pcm_format: String,
     /// Live stream: stop after this many finished rounds [default: until the stream ends].
@@ -514,7 +513,7 @@ pub struct RoundSynthArgs {
     #[arg(long, value_delimiter = ',', allow_hyphen_values = true)]
     pub tap_angles: Vec<f64>,
     /// Round of taps: each tap's strength varies at random within ±this
-    /// many dB [default: 0].
+    /// many dB.
     #[arg(long, default_value_t = 0.0)]
     pub tap_spread: f64,
 }
