@@ -21,6 +21,7 @@ pub mod plate_fit;
 pub mod quality;
 pub mod refining;
 pub mod round;
+pub mod round_angle;
 pub mod round_taps;
 pub mod rows;
 pub mod settle;
