@@ -463,3 +463,64 @@ fn issue_13_report_files() {
         .collect();
     assert!(names.iter().all(|n| !n.contains(".part")), "{names:?}");
 }
+
+/// One recording per lug, in lug order, gives the direction as one
+/// recording of the whole round does.
+#[test]
+fn issue_13_one_file_per_lug() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut files = Vec::new();
+    for j in 0..6 {
+        let path = dir.path().join(format!("lug{}.wav", j + 1));
+        let angle = -60.0 * j as f64 + [2.0, -1.0, 3.0, -2.0, 1.0, 0.0][j];
+        let out = tonus()
+            .arg("synth")
+            .args(HEAD)
+            .args([
+                "--tension",
+                "3000N/m",
+                "--snr",
+                "30",
+                "--length",
+                "1.6s",
+                "--pre-roll",
+                "0.3s",
+            ])
+            .arg(format!("--tap-at=0.6,{angle}"))
+            .args([
+                "--tension-skew",
+                "2%",
+                "--skew-angle",
+                "50",
+                "--seed",
+                &(80 + j).to_string(),
+                "-o",
+            ])
+            .arg(&path)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        files.push(path);
+    }
+    let out = tonus()
+        .arg("round")
+        .args(&files)
+        .args(HEAD)
+        .args(["--lugs", "6", "--json"])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: Value = serde_json::from_slice(&out.stdout).unwrap();
+    let th = v["pattern"]["orders"][0]["angle_deg"].as_f64().unwrap();
+    eprintln!("one file per lug: θ₀ = {th:.2}° (truth 50°)");
+    assert!(angle_diff(th, 50.0, 180.0).abs() < 5.0, "{v}");
+    assert_eq!(v["taps"].as_array().unwrap().len(), 6);
+}
