@@ -524,3 +524,38 @@ fn issue_13_one_file_per_lug() {
     assert!(angle_diff(th, 50.0, 180.0).abs() < 5.0, "{v}");
     assert_eq!(v["taps"].as_array().unwrap().len(), 6);
 }
+
+/// Two rounds in one stream: two results, the second's onsets counted
+/// from the start of the stream, each direction within 5°.
+#[test]
+fn issue_13_stream_of_two_rounds() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = synth_round(dir.path(), "two.wav", 6, 12, Some("2%"), 70.0, 9);
+    let out = pipe(&std::fs::read(&file).unwrap(), &["--lugs", "6", "--json"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let rounds: Vec<Value> = String::from_utf8_lossy(&out.stdout)
+        .lines()
+        .map(|l| serde_json::from_str(l).unwrap())
+        .collect();
+    assert_eq!(rounds.len(), 2);
+    for (k, v) in rounds.iter().enumerate() {
+        let th = v["pattern"]["orders"][0]["angle_deg"].as_f64().unwrap();
+        assert!(
+            angle_diff(th, 70.0, 180.0).abs() < 5.0,
+            "round {}: {th}",
+            k + 1
+        );
+        let first = v["taps"][0]["onset_s"].as_f64().unwrap();
+        // Taps 1.3 s apart after 0.3 s: round 2 starts at 0.3 + 6·1.3 s.
+        let want = 0.3 + 6.0 * 1.3 * k as f64;
+        assert!(
+            (first - want).abs() < 0.02,
+            "round {}: onset {first}",
+            k + 1
+        );
+    }
+}

@@ -431,7 +431,7 @@ pub fn live<R: std::io::Read>(
                 break;
             }
             let rel: Vec<usize> = st.onsets.iter().map(|&o| o - st.base).collect();
-            let t = taps::measure_tap(
+            let mut t = taps::measure_tap(
                 &st.buf,
                 rate,
                 &rel[..(i + 2).min(rel.len())],
@@ -441,6 +441,9 @@ pub fn live<R: std::io::Read>(
                 &s.opts,
                 &name,
             )?;
+            // Onsets are kept from the start of the stream; the buffer
+            // starts later once a round has been trimmed away.
+            t.onset_s = on as f64 / rate;
             if !a.json {
                 print(&tap_line(&t, unit));
             }
