@@ -437,26 +437,7 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
     for v in x.iter_mut() {
         *v *= PEAK_FS / peak;
     }
-    let o = onsets[0];
-    let win = ((0.1 * sr) as usize).min(n - o).max(1);
-    let rms = (x[o..o + win].iter().map(|v| v * v).sum::<f64>() / win as f64).sqrt();
-    let noise_rms = rms * 10f64.powf(-cfg.snr_db / 20.0);
-    let mut rng = Rng::new(cfg.seed);
-    let hum = cfg
-        .hum
-        .map(|(mains, level)| (mains, rms * 10f64.powf(level / 20.0)));
-    let hum_phase = rng.uniform() * 2.0 * PI;
-    let gain = 10f64.powf(cfg.gain_db / 20.0);
-    for (i, v) in x.iter_mut().enumerate() {
-        let mut s = *v + noise_rms * rng.normal();
-        if let Some((mains, a)) = hum {
-            let t = i as f64 / sr;
-            for (k, rel) in [(1.0, 1.0), (2.0, 0.5), (3.0, 0.316)] {
-                s += a * rel * (2.0 * PI * mains * k * t + hum_phase * k).sin();
-            }
-        }
-        *v = (s * gain).clamp(-1.0, 1.0);
-    }
+    add_noise_and_hum(&mut x, onsets[0], cfg);
     Ok(x)
 }
 
@@ -509,26 +490,7 @@ pub fn synthesise_round(
     for v in x.iter_mut() {
         *v *= PEAK_FS / peak.max(1e-300);
     }
-    let o = onsets[0];
-    let win = ((0.1 * sr) as usize).min(n - o).max(1);
-    let rms = (x[o..o + win].iter().map(|v| v * v).sum::<f64>() / win as f64).sqrt();
-    let noise_rms = rms * 10f64.powf(-cfg.snr_db / 20.0);
-    let mut rng = Rng::new(cfg.seed);
-    let hum = cfg
-        .hum
-        .map(|(mains, level)| (mains, rms * 10f64.powf(level / 20.0)));
-    let hum_phase = rng.uniform() * 2.0 * PI;
-    let gain = 10f64.powf(cfg.gain_db / 20.0);
-    for (i, v) in x.iter_mut().enumerate() {
-        let mut s = *v + noise_rms * rng.normal();
-        if let Some((mains, a)) = hum {
-            let t = i as f64 / sr;
-            for (k, rel) in [(1.0, 1.0), (2.0, 0.5), (3.0, 0.316)] {
-                s += a * rel * (2.0 * PI * mains * k * t + hum_phase * k).sin();
-            }
-        }
-        *v = (s * gain).clamp(-1.0, 1.0);
-    }
+    add_noise_and_hum(&mut x, onsets[0], cfg);
     Ok(x)
 }
 
@@ -553,6 +515,33 @@ fn pair_split(cfg: &SynthConfig, m: u32, nn: u32) -> Option<(f64, f64, f64)> {
                 let quarter = if c >= 0.0 { 0.0 } else { 90.0 / m as f64 };
                 (1.0 + s / 2.0, 1.0 - s / 2.0, (th + quarter).to_radians())
             }),
+    }
+}
+
+/// Adds white noise at `cfg.snr_db` below the RMS of the first 100 ms
+/// after the sample `onset`, the mains hum of `cfg.hum` (three harmonics
+/// at 0, −6 and −10 dB) and the gain, and clips to full scale.
+fn add_noise_and_hum(x: &mut [f64], onset: usize, cfg: &SynthConfig) {
+    let sr = cfg.sample_rate_hz as f64;
+    let (n, o) = (x.len(), onset);
+    let win = ((0.1 * sr) as usize).min(n - o).max(1);
+    let rms = (x[o..o + win].iter().map(|v| v * v).sum::<f64>() / win as f64).sqrt();
+    let noise_rms = rms * 10f64.powf(-cfg.snr_db / 20.0);
+    let mut rng = Rng::new(cfg.seed);
+    let hum = cfg
+        .hum
+        .map(|(mains, level)| (mains, rms * 10f64.powf(level / 20.0)));
+    let hum_phase = rng.uniform() * 2.0 * PI;
+    let gain = 10f64.powf(cfg.gain_db / 20.0);
+    for (i, v) in x.iter_mut().enumerate() {
+        let mut s = *v + noise_rms * rng.normal();
+        if let Some((mains, a)) = hum {
+            let t = i as f64 / sr;
+            for (k, rel) in [(1.0, 1.0), (2.0, 0.5), (3.0, 0.316)] {
+                s += a * rel * (2.0 * PI * mains * k * t + hum_phase * k).sin();
+            }
+        }
+        *v = (s * gain).clamp(-1.0, 1.0);
     }
 }
 
