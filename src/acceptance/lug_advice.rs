@@ -169,7 +169,11 @@ pub fn advise(
         "then tap the same round again (same lugs, same microphone place) to confirm".to_string();
     let Some(devs) = &pattern.lugs else {
         let (summary, steps) = match &pattern.not_measurable {
-            Some(why) => (why.clone(), vec![]),
+            Some(_) => (
+                "no lug advice: unevenness not measurable from these taps (why: see the pattern)"
+                    .into(),
+                vec![],
+            ),
             None => (
                 "the head is uneven but the taps do not fix which lugs: no lug advice".into(),
                 vec![pattern
@@ -325,6 +329,8 @@ mod tests {
         };
         let a = advise(&p, None, "N/m", 1.0, None);
         assert!(a.lugs.is_empty() && a.steps.is_empty());
-        assert!(a.summary.starts_with("unevenness not measurable"));
+        assert!(a
+            .summary
+            .contains("unevenness not measurable from these taps"));
     }
 }

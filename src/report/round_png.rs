@@ -57,14 +57,18 @@ pub fn render(
             .pos(Pos::new(HPos::Center, VPos::Top));
         root.draw(&Text::new(title.to_string(), (n as i32 / 2, 14), top))
             .map_err(err)?;
+        let summary = if a.lugs.is_empty() {
+            "no lug advice".to_string()
+        } else {
+            a.summary.clone()
+        };
         let sub = match r.mean {
             Some(m) => format!(
-                "mean {} over {} taps; {}",
+                "mean {} over {} taps; {summary}",
                 crate::report::text::pm(m.value, m.standard_uncertainty, r.unit),
                 r.taps.len() - r.left_out.len(),
-                a.summary
             ),
-            None => a.summary.clone(),
+            None => summary,
         };
         let sub_style = font(15.0)
             .color(&INK)
@@ -97,8 +101,9 @@ pub fn render(
             .fold(a.tolerance_pct, f64::max)
             .max(1e-6);
         let px_per_pct = LONGEST_BAR_PX / reach;
-        // Tolerance circles.
-        for sign in [-1.0, 1.0] {
+        // Tolerance circles (only beside bars to compare).
+        let signs: &[f64] = if a.lugs.is_empty() { &[] } else { &[-1.0, 1.0] };
+        for &sign in signs {
             let rad = RIM_PX + sign * a.tolerance_pct * px_per_pct;
             let pts: Vec<(i32, i32)> = (0..=180).map(|i| at(rad, i as f64 * 2.0)).collect();
             for (k, w) in pts.windows(2).enumerate() {
@@ -223,10 +228,15 @@ pub fn render(
             ))
             .map_err(err)?;
         }
-        let foot = format!(
+        let foot = if a.lugs.is_empty() {
+            "no bars: the lugs' deviations are not known from these taps (see the report)"
+                .to_string()
+        } else {
+            format!(
             "bar: lug's deviation from the mean, outward = tighter, {:.0} px per %;  whisker: ±2u;  dashed circles: tolerance ±{} %",
             px_per_pct, a.tolerance_pct
-        );
+        )
+        };
         root.draw(&Text::new(
             foot,
             (n as i32 / 2, n as i32 - 28),
