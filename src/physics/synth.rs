@@ -41,7 +41,7 @@
 
 use crate::base::error::{Result, TonusError};
 use crate::base::units::{KgPerM2, NewtonsPerMeter};
-use crate::physics::membrane::{wave_speed, Point, Shape};
+use crate::physics::membrane::{wave_speed, ModeLine, Point, Shape};
 use std::f64::consts::PI;
 
 /// Default tap pulse duration, s.
@@ -224,6 +224,37 @@ pub fn half_sine_spectrum(f: f64, d: f64) -> f64 {
 /// Impossible settings (non-positive duration, tap outside the membrane,
 /// a sample rate outside 8–192 kHz).
 pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
+    check_config(cfg)?;
+    let sr = cfg.sample_rate_hz as f64;
+    let n = (cfg.duration_s * sr).round() as usize;
+    let mut comps = components(cfg);
+    extra_tones(cfg, &mut comps);
+    let onsets: Vec<usize> = (0..cfg.taps.max(1))
+        .map(|i| ((cfg.pre_roll_s + i as f64 * cfg.tap_interval_s) * sr).round() as usize)
+        .filter(|&o| o < n)
+        .collect();
+    let mut x = vec![0.0; n];
+    for &o in &onsets {
+        render(&mut x[o..], &comps, sr);
+    }
+    // Scale the tap to −3 dBFS, then add noise and hum relative to it.
+    let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    if peak <= 0.0 {
+        return Err(TonusError::OutOfRange {
+            key: "--tap-at".into(),
+            value: format!("{:?}", cfg.tap),
+            why: "no mode is excited there (a corner or edge); tap inside the membrane".into(),
+        });
+    }
+    for v in x.iter_mut() {
+        *v *= PEAK_FS / peak;
+    }
+    add_noise_and_hum(&mut x, onsets[0], cfg);
+    Ok(x)
+}
+
+/// Refuses a sample rate, length or tap point out of range.
+fn check_config(cfg: &SynthConfig) -> Result<()> {
     let bad = |key: &str, value: String, why: &str| TonusError::OutOfRange {
         key: key.into(),
         value,
@@ -254,139 +285,189 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
             "coordinates are fractions 0..1 of the size",
         ));
     }
+    Ok(())
+}
+
+/// A decaying component: (frequency Hz, amplitude, amplitude decay rate 1/τ).
+type Component = (f64, f64, f64);
+
+/// The membrane's components: every mode line up to the highest frequency,
+/// at its frequency under the configured physics (split pairs of a skewed
+/// circle, biaxial rectangle, plate, air loading) and with its coupling at
+/// the tap and pickup points.
+fn components(cfg: &SynthConfig) -> Vec<Component> {
     let sr = cfg.sample_rate_hz as f64;
-    let n = (cfg.duration_s * sr).round() as usize;
     let c = wave_speed(cfg.tension, cfg.areal_density).0;
     let fmax = cfg.max_frequency_hz.min(0.45 * sr);
     let lines = cfg.shape.lines(fmax / c, None, None);
     let f1 = cfg.shape.fundamental_factor() * c;
-    // (frequency, amplitude, amplitude decay rate 1/τ)
-    let mut comps: Vec<(f64, f64, f64)> = Vec::new();
+    let mut comps: Vec<Component> = Vec::new();
     for line in &lines {
-        if let Shape::Circle { .. } = cfg.shape {
-            let (m, nn) = line.labels[0];
-            let split = pair_split(cfg, m, nn);
-            if let (Some((up, down, alpha)), 1) = (split, line.labels.len()) {
-                let air = if cfg.air_loaded {
-                    crate::physics::airload::loading_factor(line.factor, cfg.areal_density.0)
-                } else {
-                    1.0
-                };
-                let f0 = line.factor * c * air;
-                let radial = |u: f64| cfg.shape.mode_shape(m, nn, Point { u, v: None });
-                let r = radial(cfg.tap.u) * cfg.pickup.map(|p| radial(p.u)).unwrap_or(1.0);
-                let mm = m as f64;
-                let th_t = mm * (cfg.tap.v.unwrap_or(0.0).to_radians() - alpha);
-                let (cp, sp) = match cfg.pickup.and_then(|p| p.v) {
-                    Some(deg) => (
-                        (mm * (deg.to_radians() - alpha)).cos(),
-                        (mm * (deg.to_radians() - alpha)).sin(),
-                    ),
-                    None => (1.0, 1.0),
-                };
-                for (f, amp) in [
-                    (f0 * up, r * th_t.cos() * cp),
-                    (f0 * down, r * th_t.sin() * sp),
-                ] {
-                    let a = amp * half_sine_spectrum(f, cfg.tap_duration_s);
-                    let t60 = cfg.t60_s * (f1 / f).sqrt();
-                    if a.abs() > 1e-6 {
-                        comps.push((f, a, 3.0 * std::f64::consts::LN_10 / t60));
-                    }
-                }
-                continue;
-            }
-        }
-        // Biaxial tension on a rectangle: every mode of the line at its
-        // own frequency, f² = (Tx·(m/Lx)² + Ty·(n/Ly)²)/(4σ), with its own
-        // coupling (on a square the (m,n)/(n,m) pair of a line splits).
-        if let (Some(ty), Shape::Rectangle { width, height }, None) =
-            (cfg.tension_y, cfg.shape, cfg.bending_stiffness)
-        {
-            for &(m, n) in &line.labels {
-                let f = ((cfg.tension.0 * (m as f64 / width.0).powi(2)
-                    + ty.0 * (n as f64 / height.0).powi(2))
-                    / (4.0 * cfg.areal_density.0))
-                    .sqrt();
-                let coupling = cfg.shape.mode_shape(m, n, cfg.tap)
-                    * cfg
-                        .pickup
-                        .map(|p| cfg.shape.mode_shape(m, n, p))
-                        .unwrap_or(1.0);
-                let a = coupling * half_sine_spectrum(f, cfg.tap_duration_s);
-                let t60 = cfg.t60_s * (f1 / f).sqrt();
-                if a.abs() > 1e-6 {
-                    comps.push((f, a, 3.0 * std::f64::consts::LN_10 / t60));
-                }
-            }
+        if split_pair_components(cfg, line, c, f1, &mut comps) {
             continue;
         }
-        let f = match (cfg.tension_y, cfg.shape) {
-            _ if cfg.bending_stiffness.is_some()
-                && matches!(cfg.shape, Shape::Rectangle { .. }) =>
-            {
-                let (Shape::Rectangle { width, height }, Some(d)) =
-                    (cfg.shape, cfg.bending_stiffness)
-                else {
-                    unreachable!("checked by the guard")
-                };
-                let (m, n) = line.labels[0];
-                let s = cfg.areal_density.0;
-                crate::physics::plate::frequency_hz(
-                    cfg.tension.0 / s,
-                    d / s,
-                    crate::physics::plate::k_squared(width.0, height.0, m, n),
-                )
-            }
-            _ if cfg.air_loaded => {
-                line.factor
-                    * c
-                    * crate::physics::airload::loading_factor(line.factor, cfg.areal_density.0)
-            }
-            _ => line.factor * c,
-        };
-        let mut a = 0.0;
-        for &(m, nn) in &line.labels {
-            let pair = match cfg.shape {
-                Shape::Circle { .. } if m > 0 => {
-                    // cos and sin members: φ_c(t)φ_c(p) + φ_s(t)φ_s(p) =
-                    // R(t)R(p)·cos(m(θt − θp)).
-                    let rt = cfg.shape.mode_shape(
-                        m,
-                        nn,
-                        Point {
-                            u: cfg.tap.u,
-                            v: None,
-                        },
-                    );
-                    let rp = cfg
-                        .pickup
-                        .map(|p| cfg.shape.mode_shape(m, nn, Point { u: p.u, v: None }))
-                        .unwrap_or(1.0);
-                    let ang = match (cfg.tap.v, cfg.pickup.and_then(|p| p.v)) {
-                        (Some(a), Some(b)) => (m as f64 * (a - b).to_radians()).cos(),
-                        _ => 1.0,
-                    };
-                    rt * rp * ang
-                }
-                _ => {
-                    let t = cfg.shape.mode_shape(m, nn, cfg.tap);
-                    let p = cfg
-                        .pickup
-                        .map(|p| cfg.shape.mode_shape(m, nn, p))
-                        .unwrap_or(1.0);
-                    t * p
-                }
-            };
-            a += pair;
+        if biaxial_components(cfg, line, f1, &mut comps) {
+            continue;
         }
-        a *= half_sine_spectrum(f, cfg.tap_duration_s);
+        let f = line_frequency(cfg, line, c);
+        let a = line_coupling(cfg, line) * half_sine_spectrum(f, cfg.tap_duration_s);
         let t60 = cfg.t60_s * (f1 / f).sqrt();
         let rate = 3.0 * std::f64::consts::LN_10 / t60;
         if a.abs() > 1e-6 {
             comps.push((f, a, rate));
         }
     }
+    comps
+}
+
+/// A circle's (m,n) pair split by an uneven tension: its two members at
+/// their own frequencies and couplings. False when the line is not split.
+fn split_pair_components(
+    cfg: &SynthConfig,
+    line: &ModeLine,
+    c: f64,
+    f1: f64,
+    comps: &mut Vec<Component>,
+) -> bool {
+    if let Shape::Circle { .. } = cfg.shape {
+        let (m, nn) = line.labels[0];
+        let split = pair_split(cfg, m, nn);
+        if let (Some((up, down, alpha)), 1) = (split, line.labels.len()) {
+            let air = if cfg.air_loaded {
+                crate::physics::airload::loading_factor(line.factor, cfg.areal_density.0)
+            } else {
+                1.0
+            };
+            let f0 = line.factor * c * air;
+            let radial = |u: f64| cfg.shape.mode_shape(m, nn, Point { u, v: None });
+            let r = radial(cfg.tap.u) * cfg.pickup.map(|p| radial(p.u)).unwrap_or(1.0);
+            let mm = m as f64;
+            let th_t = mm * (cfg.tap.v.unwrap_or(0.0).to_radians() - alpha);
+            let (cp, sp) = match cfg.pickup.and_then(|p| p.v) {
+                Some(deg) => (
+                    (mm * (deg.to_radians() - alpha)).cos(),
+                    (mm * (deg.to_radians() - alpha)).sin(),
+                ),
+                None => (1.0, 1.0),
+            };
+            for (f, amp) in [
+                (f0 * up, r * th_t.cos() * cp),
+                (f0 * down, r * th_t.sin() * sp),
+            ] {
+                let a = amp * half_sine_spectrum(f, cfg.tap_duration_s);
+                let t60 = cfg.t60_s * (f1 / f).sqrt();
+                if a.abs() > 1e-6 {
+                    comps.push((f, a, 3.0 * std::f64::consts::LN_10 / t60));
+                }
+            }
+            return true;
+        }
+    }
+    false
+}
+
+/// Biaxial tension on a rectangle: every mode of the line at its own
+/// frequency, f² = (Tx·(m/Lx)² + Ty·(n/Ly)²)/(4σ), with its own coupling
+/// (on a square the (m,n)/(n,m) pair of a line splits). False when the
+/// tension is not biaxial.
+fn biaxial_components(
+    cfg: &SynthConfig,
+    line: &ModeLine,
+    f1: f64,
+    comps: &mut Vec<Component>,
+) -> bool {
+    if let (Some(ty), Shape::Rectangle { width, height }, None) =
+        (cfg.tension_y, cfg.shape, cfg.bending_stiffness)
+    {
+        for &(m, n) in &line.labels {
+            let f = ((cfg.tension.0 * (m as f64 / width.0).powi(2)
+                + ty.0 * (n as f64 / height.0).powi(2))
+                / (4.0 * cfg.areal_density.0))
+                .sqrt();
+            let coupling = cfg.shape.mode_shape(m, n, cfg.tap)
+                * cfg
+                    .pickup
+                    .map(|p| cfg.shape.mode_shape(m, n, p))
+                    .unwrap_or(1.0);
+            let a = coupling * half_sine_spectrum(f, cfg.tap_duration_s);
+            let t60 = cfg.t60_s * (f1 / f).sqrt();
+            if a.abs() > 1e-6 {
+                comps.push((f, a, 3.0 * std::f64::consts::LN_10 / t60));
+            }
+        }
+        return true;
+    }
+    false
+}
+
+/// The frequency of an unsplit line: plate, air-loaded or ideal membrane.
+fn line_frequency(cfg: &SynthConfig, line: &ModeLine, c: f64) -> f64 {
+    match (cfg.tension_y, cfg.shape) {
+        _ if cfg.bending_stiffness.is_some() && matches!(cfg.shape, Shape::Rectangle { .. }) => {
+            let (Shape::Rectangle { width, height }, Some(d)) = (cfg.shape, cfg.bending_stiffness)
+            else {
+                unreachable!("checked by the guard")
+            };
+            let (m, n) = line.labels[0];
+            let s = cfg.areal_density.0;
+            crate::physics::plate::frequency_hz(
+                cfg.tension.0 / s,
+                d / s,
+                crate::physics::plate::k_squared(width.0, height.0, m, n),
+            )
+        }
+        _ if cfg.air_loaded => {
+            line.factor
+                * c
+                * crate::physics::airload::loading_factor(line.factor, cfg.areal_density.0)
+        }
+        _ => line.factor * c,
+    }
+}
+
+/// The coupling of an unsplit line at the tap and pickup points, summed
+/// over its modes.
+fn line_coupling(cfg: &SynthConfig, line: &ModeLine) -> f64 {
+    let mut a = 0.0;
+    for &(m, nn) in &line.labels {
+        let pair = match cfg.shape {
+            Shape::Circle { .. } if m > 0 => {
+                // cos and sin members: φ_c(t)φ_c(p) + φ_s(t)φ_s(p) =
+                // R(t)R(p)·cos(m(θt − θp)).
+                let rt = cfg.shape.mode_shape(
+                    m,
+                    nn,
+                    Point {
+                        u: cfg.tap.u,
+                        v: None,
+                    },
+                );
+                let rp = cfg
+                    .pickup
+                    .map(|p| cfg.shape.mode_shape(m, nn, Point { u: p.u, v: None }))
+                    .unwrap_or(1.0);
+                let ang = match (cfg.tap.v, cfg.pickup.and_then(|p| p.v)) {
+                    (Some(a), Some(b)) => (m as f64 * (a - b).to_radians()).cos(),
+                    _ => 1.0,
+                };
+                rt * rp * ang
+            }
+            _ => {
+                let t = cfg.shape.mode_shape(m, nn, cfg.tap);
+                let p = cfg
+                    .pickup
+                    .map(|p| cfg.shape.mode_shape(m, nn, p))
+                    .unwrap_or(1.0);
+                t * p
+            }
+        };
+        a += pair;
+    }
+    a
+}
+
+/// Extra steady or decaying tones, levels relative to the strongest mode.
+fn extra_tones(cfg: &SynthConfig, comps: &mut Vec<Component>) {
     let strongest = comps.iter().fold(0.0f64, |m, c| m.max(c.1.abs()));
     for t in &cfg.extra_tones {
         let rate = if t.t60_s.is_finite() && t.t60_s > 0.0 {
@@ -400,45 +481,28 @@ pub fn synthesise(cfg: &SynthConfig) -> Result<Vec<f64>> {
             rate,
         ));
     }
-    let mut x = vec![0.0; n];
-    let onsets: Vec<usize> = (0..cfg.taps.max(1))
-        .map(|i| ((cfg.pre_roll_s + i as f64 * cfg.tap_interval_s) * sr).round() as usize)
-        .filter(|&o| o < n)
-        .collect();
-    for &o in &onsets {
-        // Each component by a rotating phasor: one complex multiply per
-        // sample instead of an exp and a sin.
-        for &(f, a, rate) in &comps {
-            let step = num_complex_step(f, rate, sr);
-            // Start in sine phase: the value is the imaginary part of
-            // a·e^{(−rate + iω)t}.
-            let (mut pr, mut pi) = (a, 0.0f64);
-            for v in x[o..].iter_mut() {
-                *v += pi;
-                let nr = pr * step.0 - pi * step.1;
-                let ni = pr * step.1 + pi * step.0;
-                pr = nr;
-                pi = ni;
-                if pr.abs() + pi.abs() < 1e-9 * a.abs() {
-                    break;
-                }
+}
+
+/// Adds every component from the start of `x` (one tap), each by a
+/// rotating phasor: one complex multiply per sample instead of an exp and
+/// a sin.
+fn render(x: &mut [f64], comps: &[Component], sr: f64) {
+    for &(f, a, rate) in comps {
+        let step = num_complex_step(f, rate, sr);
+        // Start in sine phase: the value is the imaginary part of
+        // a·e^{(−rate + iω)t}.
+        let (mut pr, mut pi) = (a, 0.0f64);
+        for v in x.iter_mut() {
+            *v += pi;
+            let nr = pr * step.0 - pi * step.1;
+            let ni = pr * step.1 + pi * step.0;
+            pr = nr;
+            pi = ni;
+            if pr.abs() + pi.abs() < 1e-9 * a.abs() {
+                break;
             }
         }
     }
-    // Scale the tap to −3 dBFS, then add noise and hum relative to it.
-    let peak = x.iter().fold(0.0f64, |m, v| m.max(v.abs()));
-    if peak <= 0.0 {
-        return Err(TonusError::OutOfRange {
-            key: "--tap-at".into(),
-            value: format!("{:?}", cfg.tap),
-            why: "no mode is excited there (a corner or edge); tap inside the membrane".into(),
-        });
-    }
-    for v in x.iter_mut() {
-        *v *= PEAK_FS / peak;
-    }
-    add_noise_and_hum(&mut x, onsets[0], cfg);
-    Ok(x)
 }
 
 /// A round of taps: one tap at each of `angles_deg` (degrees, the tap
