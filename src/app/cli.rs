@@ -456,8 +456,14 @@ pub struct RoundArgs {
     #[command(flatten)]
     pub input: InputArgs,
     /// Number of lugs, one tap near each, 3 to 64.
+    #[arg(long, required_unless_present = "points", conflicts_with = "points")]
+    pub lugs: Option<usize>,
+    /// A rectangular panel or screen instead of a head: each tap's point
+    /// as fractions of width and height, in tap order, e.g.
+    /// "0.3,0.2 0.7,0.35 0.25,0.65" (biaxial model; gives the tighter
+    /// axis, Tx and Ty from all the taps).
     #[arg(long)]
-    pub lugs: usize,
+    pub points: Option<String>,
     /// Angle of lug 1 in degrees, counter-clockwise from the head's 0°
     /// mark, seen from above.
     #[arg(long, default_value_t = 0.0, allow_hyphen_values = true)]

@@ -6,4 +6,5 @@ pub mod cli;
 pub mod commands;
 pub mod options;
 pub mod round;
+pub mod round_points;
 pub mod scorecard;

@@ -28,6 +28,7 @@ pub const MAX_LUGS: usize = 64;
 
 /// The validated settings of a round.
 pub struct Settings {
+    lugs: usize,
     panel: Panel,
     opts: FitOptions,
     angles: Vec<f64>,
@@ -41,10 +42,11 @@ pub struct Settings {
 /// # Errors
 /// A flag out of range or malformed, a panel that is not a circle.
 pub fn settings(a: &RoundArgs) -> Result<Settings> {
-    if !(3..=MAX_LUGS).contains(&a.lugs) {
+    let lugs = a.lugs.unwrap_or(0);
+    if !(3..=MAX_LUGS).contains(&lugs) {
         return Err(TonusError::OutOfRange {
             key: "--lugs".into(),
-            value: a.lugs.to_string(),
+            value: lugs.to_string(),
             why: format!("a round needs 3 to {MAX_LUGS} lugs, one tap near each"),
         });
     }
@@ -87,7 +89,7 @@ pub fn settings(a: &RoundArgs) -> Result<Settings> {
     let panel = a.panel.to_panel()?;
     if !matches!(panel.shape, Shape::Circle { .. }) {
         return Err(TonusError::Panel(
-            "a round of taps needs a circular head (--diameter or --radius); panels and screens are not surveyed yet".into(),
+            "a round of taps needs a circular head (--diameter or --radius); for a panel or screen give --points instead of --lugs".into(),
         ));
     }
     let model = a.model.clone().or(a.panel.to_spec()?.model);
@@ -112,7 +114,8 @@ pub fn settings(a: &RoundArgs) -> Result<Settings> {
         .map(|r| crate::base::units::parse_tension("--rating", r).map(|t| t.0))
         .transpose()?;
     Ok(Settings {
-        angles: round::lug_angles(a.lugs, a.first_lug, clockwise),
+        angles: round::lug_angles(lugs, a.first_lug, clockwise),
+        lugs,
         panel,
         opts,
         clockwise,
@@ -174,7 +177,7 @@ fn finish_round(
         panel: s.panel.describe(),
         diameter_m: 2.0 * radius.0,
         areal_density: s.panel.areal_density.map(|d| d.0),
-        lugs: a.lugs,
+        lugs: s.lugs,
         first_deg: a.first_lug,
         clockwise: s.clockwise,
     };
@@ -183,7 +186,7 @@ fn finish_round(
             path: dir.clone(),
             reason: e.to_string(),
         })?;
-        let title = format!("{source} — round of {} lugs, {}", a.lugs, setting.panel);
+        let title = format!("{source} — round of {} lugs, {}", s.lugs, setting.panel);
         let png = crate::report::round_png::render(&title, &result, &advice, &s.angles).map_err(
             |reason| TonusError::Write {
                 path: dir.join(format!("{stem}.round.png")),
@@ -221,6 +224,9 @@ fn finish_round(
 /// # Errors
 /// Bad flags, unreadable input, a tap count that does not match the lugs.
 pub fn run(a: &RoundArgs, print: &mut dyn FnMut(&str)) -> Result<Outcome> {
+    if let Some(points) = &a.points {
+        return crate::app::round_points::run(a, points, print);
+    }
     let s = settings(a)?;
     let stdin = a.recordings.len() == 1 && a.recordings[0].as_os_str() == "-";
     if stdin {
@@ -240,16 +246,16 @@ pub fn run(a: &RoundArgs, print: &mut dyn FnMut(&str)) -> Result<Outcome> {
         let path = &a.recordings[0];
         let rec = crate::signal::recording::read_audio(path, channel)?;
         let onsets = TapFinder::new(rec.sample_rate_hz).feed(&rec.samples);
-        if onsets.len() != a.lugs {
+        if onsets.len() != s.lugs {
             return Err(TonusError::BadRecording {
                 path: path.clone(),
                 problem: format!(
                     "found {} tap(s), expected {} (one near each lug, --lugs {})",
                     onsets.len(),
-                    a.lugs,
-                    a.lugs
+                    s.lugs,
+                    s.lugs
                 ),
-                hint: if onsets.len() < a.lugs {
+                hint: if onsets.len() < s.lugs {
                     "a lug was missed or tapped too softly: tap the whole round again, one firm tap per lug, about a second apart".into()
                 } else {
                     "a lug was tapped twice or something else knocked: tap the whole round again, one tap per lug, about a second apart".into()
@@ -275,11 +281,11 @@ pub fn run(a: &RoundArgs, print: &mut dyn FnMut(&str)) -> Result<Outcome> {
         source = path.display().to_string();
         stem = file_stem(path);
     } else {
-        if a.recordings.len() != a.lugs {
+        if a.recordings.len() != s.lugs {
             return Err(TonusError::Panel(format!(
                 "{} recordings for {} lugs: give one recording of the whole round, or one per lug in lug order",
                 a.recordings.len(),
-                a.lugs
+                s.lugs
             )));
         }
         for (i, (path, &ang)) in a.recordings.iter().zip(&s.angles).enumerate() {
@@ -398,7 +404,7 @@ pub fn live<R: std::io::Read>(
                     "SIGTERM"
                 },
                 st.taps.len(),
-                a.lugs,
+                s.lugs,
                 st.rounds_done + 1
             ));
             return Ok(Outcome {
@@ -422,7 +428,7 @@ pub fn live<R: std::io::Read>(
         }
         let arrived = Instant::now();
         // Decide every tap whose window is complete (or all, at the end).
-        while st.taps.len() < a.lugs && st.taps.len() < st.onsets.len() {
+        while st.taps.len() < s.lugs && st.taps.len() < st.onsets.len() {
             let i = st.taps.len();
             let on = st.onsets[i];
             let have = st.base + st.buf.len();
@@ -449,7 +455,7 @@ pub fn live<R: std::io::Read>(
             }
             st.taps.push(t);
         }
-        if st.taps.len() == a.lugs {
+        if st.taps.len() == s.lugs {
             let taps = std::mem::take(&mut st.taps);
             let result = taps::conclude(taps, unit);
             st.rounds_done += 1;
@@ -459,7 +465,7 @@ pub fn live<R: std::io::Read>(
             on_decided(arrived.elapsed());
             // The next round starts with the next onset; keep only what
             // its background may need.
-            st.onsets.drain(..a.lugs);
+            st.onsets.drain(..s.lugs);
             let have = st.base + st.buf.len();
             let cut = have.saturating_sub(keep).max(st.base);
             let cut = st
@@ -480,8 +486,8 @@ pub fn live<R: std::io::Read>(
                     path: name,
                     problem: format!(
                         "the stream ended after {} of {} taps of round {}",
-                        st.onsets.len().min(a.lugs),
-                        a.lugs,
+                        st.onsets.len().min(s.lugs),
+                        s.lugs,
                         st.rounds_done + 1
                     ),
                     hint: "no result for that round: tap every lug of the round before stopping the recorder".into(),

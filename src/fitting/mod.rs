@@ -22,6 +22,7 @@ pub mod quality;
 pub mod refining;
 pub mod round;
 pub mod round_angle;
+pub mod round_points;
 pub mod round_taps;
 pub mod rows;
 pub mod settle;

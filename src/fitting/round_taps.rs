@@ -79,6 +79,22 @@ pub fn tap_lines(m: &crate::fitting::pipeline::Measurement, angle_deg: f64) -> T
     TapLines { angle_deg, lines }
 }
 
+/// Tap `i` cut as a recording of its own: the [`BACKGROUND_S`] before the
+/// first onset (`onsets[0]`), then the samples from its onset to [`tap_end`].
+pub fn tap_recording(
+    samples: &[f64],
+    rate_hz: f64,
+    onsets: &[usize],
+    i: usize,
+    name: &std::path::Path,
+) -> crate::signal::recording::Recording {
+    let first = onsets[0];
+    let bg = ((BACKGROUND_S * rate_hz) as usize).min(first);
+    let mut cut = samples[first - bg..first].to_vec();
+    cut.extend_from_slice(&samples[onsets[i]..tap_end(onsets, i, rate_hz, samples.len())]);
+    crate::signal::recording::Recording::from_samples(name, cut, rate_hz)
+}
+
 /// Fits tap `i` of a round: the samples from its onset to [`tap_end`],
 /// after the [`BACKGROUND_S`] before the round's first onset
 /// (`onsets[0]`), through the same pipeline as `tonus fit` (aspect
@@ -99,11 +115,7 @@ pub fn measure_tap(
     opts: &crate::fitting::pipeline::FitOptions,
     name: &std::path::Path,
 ) -> crate::base::error::Result<RoundTap> {
-    let first = onsets[0];
-    let bg = ((BACKGROUND_S * rate_hz) as usize).min(first);
-    let mut cut = samples[first - bg..first].to_vec();
-    cut.extend_from_slice(&samples[onsets[i]..tap_end(onsets, i, rate_hz, samples.len())]);
-    let rec = crate::signal::recording::Recording::from_samples(name, cut, rate_hz);
+    let rec = tap_recording(samples, rate_hz, onsets, i, name);
     let opts = crate::fitting::pipeline::FitOptions {
         aspect_search: false,
         ..opts.clone()

@@ -17,6 +17,7 @@ pub mod json;
 pub mod markdown;
 pub mod round;
 pub mod round_png;
+pub mod round_points;
 pub mod text;
 
 use crate::base::error::{Result, TonusError};
