@@ -27,6 +27,8 @@
 //! angles, with a microphone at (0.45, 200°), fed to
 //! `tonus::fitting::round::orientation`, which must return θ₀.
 
+mod common;
+use common::banded::{cholesky, solve};
 use nalgebra::{DMatrix, SymmetricEigen};
 
 const EPS: f64 = 0.02;
@@ -150,44 +152,6 @@ fn matvec(band: &[Vec<f64>], bw: usize, x: &[f64]) -> Vec<f64> {
         }
     }
     y
-}
-
-fn cholesky(band: &mut [Vec<f64>], bw: usize) {
-    let n = band.len();
-    for k in 0..n {
-        for d in (1..=bw.min(k)).rev() {
-            let l = k - d;
-            let mut s = band[k][d];
-            let lo = k.saturating_sub(bw);
-            for p in lo..l {
-                if l - p <= bw {
-                    s -= band[k][k - p] * band[l][l - p];
-                }
-            }
-            band[k][d] = s / band[l][0];
-        }
-        let s = band[k][0] - band[k][1..=bw.min(k)].iter().map(|v| v * v).sum::<f64>();
-        assert!(s > 0.0, "matrix not positive definite");
-        band[k][0] = s.sqrt();
-    }
-}
-
-fn solve(band: &[Vec<f64>], bw: usize, b: &mut [f64]) {
-    let n = band.len();
-    for k in 0..n {
-        let mut s = b[k];
-        for d in 1..=bw.min(k) {
-            s -= band[k][d] * b[k - d];
-        }
-        b[k] = s / band[k][0];
-    }
-    for k in (0..n).rev() {
-        let mut s = b[k];
-        for d in 1..=bw.min(n - 1 - k) {
-            s -= band[k + d][d] * b[k + d];
-        }
-        b[k] = s / band[k][0];
-    }
 }
 
 /// The two lowest eigenpairs of the class odd under (x, y) → (−x, −y), by
