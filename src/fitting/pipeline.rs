@@ -108,7 +108,7 @@ pub fn measure_with(
         panel: panel.clone(),
         evenness: checks::evenness_of(panel, &fitted.modes),
         diagnosis,
-        calibration: applied_calibration(opts, calibration_term, &fitted.modes),
+        calibration: applied_calibration(opts, calibration_term, &fitted.not_calibrated),
         analysis,
         lines,
         matching,
@@ -165,6 +165,8 @@ struct Fitted {
     biaxial: Option<Biaxial>,
     modes: Vec<ModeRow>,
     missing: Vec<MissingMode>,
+    /// Labels of the matched modes the calibration has no factor for.
+    not_calibrated: Vec<String>,
 }
 
 /// The context the stages after labelling share.
@@ -213,10 +215,10 @@ impl Stage<'_> {
             rows::pair_warnings(&out.modes, self.warnings);
             out.missing = rows::missing_modes(f, m, lines, &out.modes, self.warnings);
         }
-        let not_calibrated = rows::not_calibrated(&out.modes);
-        if !not_calibrated.is_empty() {
+        out.not_calibrated = rows::not_calibrated(&out.modes);
+        if !out.not_calibrated.is_empty() {
             self.warnings.push(Warning::NotCalibrated {
-                labels: not_calibrated,
+                labels: out.not_calibrated.clone(),
             });
         }
         out.fit = fit;
@@ -262,7 +264,7 @@ fn ambiguity_warning(m: &Matching, warnings: &mut Vec<Warning>) {
 fn applied_calibration(
     opts: &FitOptions,
     term: Option<crate::fitting::calibration::CalibrationTerm>,
-    modes: &[ModeRow],
+    not_calibrated: &[String],
 ) -> Option<crate::fitting::calibration::Applied> {
     opts.calibration
         .as_ref()
@@ -272,7 +274,7 @@ fn applied_calibration(
             reference_tension_n_per_m: c.calibration.reference_tension_n_per_m,
             reference_tension_u_n_per_m: c.calibration.reference_tension_u_n_per_m,
             term,
-            not_calibrated: rows::not_calibrated(modes),
+            not_calibrated: not_calibrated.to_vec(),
         })
 }
 
