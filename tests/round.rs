@@ -340,6 +340,23 @@ fn issue_13_stream_ending_inside_a_round() {
     );
 }
 
+/// A stream with no tap in it (one second of raw silence, and three stray
+/// bytes): an error that says nothing was heard, not a silent exit 0.
+#[test]
+fn issue_13_stream_without_a_tap_is_an_error() {
+    let mut silence = vec![0u8; 2 * 48_000];
+    silence.extend_from_slice(b"abc");
+    let out = pipe(
+        &silence,
+        &["--lugs", "6", "--pcm-rate", "48000", "--pcm-format", "s16"],
+    );
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(err.contains("no tap heard (1.0 s of audio)"), "{err}");
+    assert!(out.stdout.is_empty());
+}
+
 /// Bad input: one line saying what is wrong and what to do, exit 2, no
 /// panic.
 #[test]

@@ -493,6 +493,16 @@ pub fn live<R: std::io::Read>(
                     hint: "no result for that round: tap every lug of the round before stopping the recorder".into(),
                 });
             }
+            if st.rounds_done == 0 {
+                return Err(TonusError::BadRecording {
+                    path: name,
+                    problem: format!(
+                        "the stream ended with no tap heard ({:.1} s of audio)",
+                        (st.base + st.buf.len()) as f64 / rate
+                    ),
+                    hint: "check the recorder's input and level (and --pcm-rate/--pcm-format for raw PCM), then tap near each lug".into(),
+                });
+            }
             break;
         }
     }
