@@ -44,7 +44,9 @@ pub fn render(
 ) -> Result<Vec<u8>, String> {
     let n = SIZE_PX as usize;
     crate::report::plot::picture(SIZE_PX, SIZE_PX, |root| {
-        let c = (SIZE_PX as f64 / 2.0, SIZE_PX as f64 / 2.0 + 5.0);
+        // The head sits a little above the middle, so a lug at the bottom
+        // keeps its label clear of the legend lines.
+        let c = (SIZE_PX as f64 / 2.0, SIZE_PX as f64 / 2.0 - 8.0);
         let at = |rad: f64, deg: f64| -> (i32, i32) {
             let t = deg.to_radians();
             (
